@@ -1,0 +1,153 @@
+//! The library's error type.
+//!
+//! Every variant names what went wrong and where (file, line, column, id) in a lowercase message
+//! without a trailing period; [`Error::hint`] says what the user can do next when the library
+//! knows. Dirty data found by a check is a result, never an error.
+
+use std::path::PathBuf;
+
+/// Result with the library [`Error`].
+pub type Result<T, E = Error> = std::result::Result<T, E>;
+
+/// Everything that can go wrong in the library.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum Error {
+    /// A file could not be read or written.
+    #[error("{path}: {source}")]
+    Io {
+        /// The file involved.
+        path: PathBuf,
+        /// The underlying error.
+        source: std::io::Error,
+    },
+    /// An extract is malformed.
+    #[error("{path}:{line}:{column}: {problem}")]
+    BadExtract {
+        /// The extract file.
+        path: PathBuf,
+        /// 1-based line.
+        line: u64,
+        /// 1-based column (field number), 0 when the whole line is at fault.
+        column: u64,
+        /// What is wrong.
+        problem: String,
+    },
+    /// An extract has a problem that is not tied to one place.
+    #[error("{path}: {problem}")]
+    BadFile {
+        /// The file.
+        path: PathBuf,
+        /// What is wrong.
+        problem: String,
+    },
+    /// No store was found walking up from a folder.
+    #[error("no emend store in {0} or any parent folder")]
+    NoStore(PathBuf),
+    /// `init` in a folder that already has a store.
+    #[error("a store already exists at {0}")]
+    StoreExists(PathBuf),
+    /// The file is not an emend store.
+    #[error("{0} is not an emend store")]
+    NotAStore(PathBuf),
+    /// The store was written by a newer build.
+    #[error("store at {path} uses schema v{found}; this build reads up to v{supported}")]
+    SchemaTooNew {
+        /// The store file.
+        path: PathBuf,
+        /// Version found.
+        found: u32,
+        /// Newest version this build knows.
+        supported: u32,
+    },
+    /// A table name that the store does not know.
+    #[error("no table named '{0}'")]
+    UnknownTable(String),
+    /// A column that the table does not have.
+    #[error("table '{table}' has no column '{column}'")]
+    UnknownColumn {
+        /// Table.
+        table: String,
+        /// Column asked for.
+        column: String,
+    },
+    /// A row that the table does not have.
+    #[error("table '{table}' has no row '{row}'")]
+    UnknownRow {
+        /// Table.
+        table: String,
+        /// Row asked for, as typed.
+        row: String,
+    },
+    /// A revision that names nothing.
+    #[error("no commit matches revision '{0}'")]
+    UnknownRevision(String),
+    /// A hash prefix that names several commits.
+    #[error("revision '{prefix}' is ambiguous: {}", candidates.join(", "))]
+    AmbiguousRevision {
+        /// The prefix typed.
+        prefix: String,
+        /// The matching ids.
+        candidates: Vec<String>,
+    },
+    /// A fix was given without a reason.
+    #[error("every fix needs a reason: --why is empty")]
+    EmptyReason,
+    /// A request that cannot be carried out as asked.
+    #[error("{0}")]
+    Invalid(String),
+    /// `commit` with nothing pending.
+    #[error("nothing to commit: no pending fixes")]
+    NothingPending,
+    /// The store is damaged in a way that stops the operation.
+    #[error("store is damaged: {0}")]
+    Corrupt(String),
+    /// Another process holds the store's write lock for too long.
+    #[error("the store is busy: another emend process is writing")]
+    Busy,
+    /// A signing key problem.
+    #[error("{0}")]
+    Key(String),
+    /// A SQLite failure that the store layer did not map to a domain error.
+    #[error("database error: {0}")]
+    Sqlite(#[from] rusqlite::Error),
+    /// A commit body could not be encoded or decoded.
+    #[error("encoding error: {0}")]
+    Encoding(#[from] postcard::Error),
+}
+
+impl Error {
+    /// What the user can do next, when the library knows.
+    pub fn hint(&self) -> Option<String> {
+        Some(match self {
+            Error::NoStore(_) => "run 'emend init' in the project folder first".into(),
+            Error::StoreExists(_) => "use the existing store, or init in another folder".into(),
+            Error::NotAStore(_) => {
+                "this file was not made by emend; it was left untouched".into()
+            }
+            Error::SchemaTooNew { .. } => "upgrade emend to open this store".into(),
+            Error::UnknownTable(_) => "'emend tables' lists the tables".into(),
+            Error::UnknownColumn { table, .. } => {
+                format!("'emend show {table} --rows 1-5' shows the columns")
+            }
+            Error::UnknownRow { table, .. } => format!(
+                "rows are named by the table's key value, or by 1-based position when '{table}' has no key"
+            ),
+            Error::UnknownRevision(_) => {
+                "a revision is a commit number, a tag, 8+ hex digits of an id, 'latest' or 'raw'; 'emend log' lists them".into()
+            }
+            Error::EmptyReason => "say why, e.g. --why \"lab sheet says 7.1\"".into(),
+            Error::NothingPending => "record a fix first (set, recode, missing, exclude, distrust)".into(),
+            Error::Busy => "wait for the other process to finish and try again".into(),
+            Error::Corrupt(_) => "run 'emend verify' for a full list of problems".into(),
+            _ => return None,
+        })
+    }
+
+    pub(crate) fn io(path: impl Into<PathBuf>, source: std::io::Error) -> Self {
+        Error::Io {
+            path: path.into(),
+            source,
+        }
+    }
+}

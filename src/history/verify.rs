@@ -1,0 +1,284 @@
+//! Checking that a store is intact: the hash chain, every signature, every stored byte, every
+//! table version and every derived index row.
+//!
+//! A problem found is a result, not an error: [`verify`] returns every problem it finds, each
+//! naming the commit or object and what is wrong. Only a failure to read the store at all is an
+//! error.
+
+use super::version::Version;
+use crate::error::Result;
+use crate::hash::{ChunkId, CommitId, Digest};
+use crate::model::{Change, CommitBody};
+use crate::signing;
+use crate::store::{IndexRows, Reader};
+use std::collections::HashSet;
+use std::io::Read;
+
+/// One thing found wrong.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Problem {
+    /// The object: `commit 3`, `chunk 1a2b…`, `cell_edit index`, ….
+    pub object: String,
+    /// What is wrong with it.
+    pub what: String,
+}
+
+/// What [`verify`] checked and found.
+#[derive(Debug, Clone, Default)]
+pub struct VerifyReport {
+    /// Commits checked.
+    pub n_commits: u64,
+    /// Chunks re-hashed.
+    pub n_chunks: u64,
+    /// Stored files re-hashed.
+    pub n_files: u64,
+    /// Table versions rebuilt.
+    pub n_versions: u64,
+    /// Index rows compared.
+    pub n_index_rows: u64,
+    /// Everything wrong, in the order found.
+    pub problems: Vec<Problem>,
+}
+
+impl VerifyReport {
+    /// Whether nothing is wrong.
+    pub fn is_clean(&self) -> bool {
+        self.problems.is_empty()
+    }
+
+    fn problem(&mut self, object: impl Into<String>, what: impl Into<String>) {
+        self.problems.push(Problem {
+            object: object.into(),
+            what: what.into(),
+        });
+    }
+}
+
+/// Which keys count as trusted.
+#[derive(Debug, Clone)]
+pub enum Trust {
+    /// The store's own list of signers.
+    Store,
+    /// A list supplied from outside (an auditor's), ignoring the store's list.
+    Keys(Vec<[u8; 32]>),
+}
+
+/// Check everything. `progress` is called with a short stage name as work advances.
+pub fn verify(reader: &Reader<'_>, trust: &Trust, progress: &mut dyn FnMut(&str)) -> Result<VerifyReport> {
+    let mut report = VerifyReport::default();
+    let trusted: HashSet<[u8; 32]> = match trust {
+        Trust::Store => reader.signers()?.into_iter().map(|s| s.key).collect(),
+        Trust::Keys(keys) => keys.iter().copied().collect(),
+    };
+
+    progress("commits");
+    let mut bodies: Vec<CommitBody> = Vec::new();
+    let mut prev: Option<CommitId> = None;
+    let mut expected_seq = 1u64;
+    for stored in reader.commits()? {
+        report.n_commits += 1;
+        let name = format!("commit {}", stored.seq);
+        if stored.seq != expected_seq {
+            report.problem(
+                &name,
+                format!("sequence jumps from {} to {} (a commit is missing)", expected_seq - 1, stored.seq),
+            );
+        }
+        expected_seq = stored.seq + 1;
+        let actual_id = CommitBody::id_of(&stored.body);
+        if actual_id != stored.id {
+            report.problem(
+                &name,
+                format!(
+                    "body does not hash to the commit id {} (the body was altered)",
+                    stored.id.short()
+                ),
+            );
+        }
+        let body = match CommitBody::decode(&stored.body) {
+            Ok(b) => b,
+            Err(e) => {
+                report.problem(&name, format!("body does not decode: {e}"));
+                prev = Some(stored.id);
+                continue;
+            }
+        };
+        if body.seq != stored.seq {
+            report.problem(&name, format!("body says it is commit {} (commits were reordered)", body.seq));
+        }
+        if body.parent != prev {
+            report.problem(
+                &name,
+                format!(
+                    "parent is {} but the previous commit is {} (the chain is broken)",
+                    body.parent.map(|p| p.short()).unwrap_or_else(|| "none".into()),
+                    prev.map(|p| p.short()).unwrap_or_else(|| "none".into())
+                ),
+            );
+        }
+        if !signing::verify(&body.author.key, stored.id.as_bytes(), &stored.signature) {
+            report.problem(
+                &name,
+                format!(
+                    "signature does not verify for key {} ({})",
+                    signing::fingerprint(&body.author.key),
+                    body.author.name
+                ),
+            );
+        } else if !trusted.contains(&body.author.key) {
+            report.problem(
+                &name,
+                format!(
+                    "signed by an untrusted key {} ({})",
+                    signing::fingerprint(&body.author.key),
+                    body.author.name
+                ),
+            );
+        }
+        if let Change::Fixes(records) = &body.change {
+            for r in records {
+                for ev in &r.fix.evidence {
+                    if !reader.has_blob(&ev.blob)? {
+                        report.problem(&name, format!("evidence '{}' ({}) is not stored", ev.name, ev.blob.short()));
+                    }
+                }
+            }
+        }
+        prev = Some(stored.id);
+        bodies.push(body);
+    }
+
+    progress("chunks");
+    let mut buf = Vec::new();
+    for id in reader.chunk_ids()? {
+        report.n_chunks += 1;
+        buf.clear();
+        match reader.read_chunk(&id, &mut buf) {
+            Ok(()) => {
+                if ChunkId(Digest::of(&buf)) != id {
+                    report.problem(format!("chunk {}", id.short()), "content does not match its hash");
+                }
+            }
+            Err(e) => report.problem(format!("chunk {}", id.short()), e.to_string()),
+        }
+    }
+
+    progress("files");
+    for (id, n_bytes, _) in reader.blobs()? {
+        report.n_files += 1;
+        let name = format!("stored file {}", id.short());
+        let mut hasher = blake3::Hasher::new();
+        let mut total = 0u64;
+        let result = reader.open_blob(&id).and_then(|mut r| {
+            let mut block = vec![0u8; 1 << 16];
+            loop {
+                let n = r.read(&mut block).map_err(|e| crate::Error::Corrupt(e.to_string()))?;
+                if n == 0 {
+                    return Ok(());
+                }
+                hasher.update(&block[..n]);
+                total += n as u64;
+            }
+        });
+        match result {
+            Err(e) => report.problem(&name, e.to_string()),
+            Ok(()) => {
+                if *hasher.finalize().as_bytes() != *id.as_bytes() {
+                    report.problem(&name, "bytes do not match its hash");
+                }
+                if total != n_bytes {
+                    report.problem(&name, format!("holds {total} bytes, its record says {n_bytes}"));
+                }
+            }
+        }
+    }
+
+    progress("index");
+    let mut expected = IndexRows::default();
+    for b in &bodies {
+        expected.add_body(b);
+    }
+    expected.sort();
+    let actual = reader.index_rows()?;
+    report.n_index_rows = (actual.extracts.len() + actual.cells.len() + actual.marks.len() + actual.versions.len()) as u64;
+    compare_rows(&mut report, "extract index", &expected.extracts, &actual.extracts, |r| {
+        format!("table {} commit {}", r.0, r.1)
+    });
+    compare_rows(&mut report, "cell_edit index", &expected.cells, &actual.cells, |r| {
+        format!("table {} row {} column {} commit {}", r.table, r.row, r.column, r.seq)
+    });
+    compare_rows(&mut report, "mark index", &expected.marks, &actual.marks, |r| {
+        format!("table {} {} {} commit {}", r.table, r.kind, r.target, r.seq)
+    });
+    compare_rows(&mut report, "version index", &expected.versions, &actual.versions, |r| {
+        format!("table {} commit {}", r.0, r.1)
+    });
+
+    progress("versions");
+    for b in &bodies {
+        for tv in &b.versions {
+            report.n_versions += 1;
+            let name = format!("commit {}", b.seq);
+            match Version::load(reader, &tv.table, b.seq, false).and_then(|v| v.hash(reader)) {
+                Ok((hash, n_rows)) => {
+                    if hash != tv.hash {
+                        report.problem(
+                            &name,
+                            format!("table '{}' rebuilt from its extract and fixes does not match the recorded version hash", tv.table),
+                        );
+                    } else if n_rows != tv.n_rows {
+                        report.problem(&name, format!("table '{}' has {n_rows} rows, the commit says {}", tv.table, tv.n_rows));
+                    }
+                }
+                Err(e) => report.problem(&name, format!("table '{}' cannot be rebuilt: {e}", tv.table)),
+            }
+        }
+    }
+    Ok(report)
+}
+
+fn compare_rows<T: Ord + Clone>(
+    report: &mut VerifyReport,
+    what: &str,
+    expected: &[T],
+    actual: &[T],
+    describe: impl Fn(&T) -> String,
+) {
+    // Both lists are sorted: walk them together.
+    let (mut i, mut j) = (0, 0);
+    let mut shown = 0;
+    let mut missing = 0;
+    let mut extra = 0;
+    while i < expected.len() || j < actual.len() {
+        let ord = match (expected.get(i), actual.get(j)) {
+            (Some(a), Some(b)) => a.cmp(b),
+            (Some(_), None) => std::cmp::Ordering::Less,
+            (None, _) => std::cmp::Ordering::Greater,
+        };
+        match ord {
+            std::cmp::Ordering::Equal => {
+                i += 1;
+                j += 1;
+            }
+            std::cmp::Ordering::Less => {
+                missing += 1;
+                if shown < 10 {
+                    report.problem(what, format!("{} is in the commit bodies but not in the index, or differs", describe(&expected[i])));
+                    shown += 1;
+                }
+                i += 1;
+            }
+            std::cmp::Ordering::Greater => {
+                extra += 1;
+                if shown < 10 {
+                    report.problem(what, format!("{} is in the index but no commit body says so", describe(&actual[j])));
+                    shown += 1;
+                }
+                j += 1;
+            }
+        }
+    }
+    if missing + extra > shown {
+        report.problem(what, format!("{} more rows differ", missing + extra - shown));
+    }
+}

@@ -1,0 +1,290 @@
+//! A table version: an extract plus the net effect of the fixes up to one commit, streamed row
+//! by row. Memory is O(edits + one row), never O(table).
+
+use crate::error::{Error, Result};
+use crate::hash::{VersionHash, VersionHasher};
+use crate::ingest::csv::{CsvReader, RawRecord, ReadError};
+use crate::ingest::decode_into;
+use crate::model::{IngestRecord, KEY_SEPARATOR, RowId};
+use crate::store::Reader;
+use std::collections::{HashMap, HashSet};
+use std::ops::ControlFlow;
+
+/// One row as a version presents it.
+#[derive(Debug)]
+pub struct RowView<'r> {
+    /// 1-based position in the extract (blank lines not counted).
+    pub pos: u64,
+    /// The row's identity.
+    pub id: &'r RowId,
+    /// Cell values; `None` is missing.
+    pub cells: &'r [Option<String>],
+    /// Whether a fix excluded the row.
+    pub excluded: bool,
+}
+
+/// The state of one table at one commit.
+#[derive(Debug, Clone)]
+pub struct Version {
+    /// Table.
+    pub table: String,
+    /// The commit this version is as of.
+    pub seq: u64,
+    /// The ingest commit of the extract this version is built on.
+    pub ingest_seq: u64,
+    /// The extract's record (header, key, dialect).
+    pub def: IngestRecord,
+    /// Net cell edits: row id -> (column index, value).
+    edits: HashMap<String, Vec<(usize, Option<String>)>>,
+    /// Excluded row ids.
+    excluded: HashSet<String>,
+    /// Per column: distrusted.
+    distrusted: Vec<bool>,
+    /// Number of net edited cells.
+    n_edited: usize,
+}
+
+impl Version {
+    /// The version of `table` as of commit `seq`; with `raw`, the extract with no fixes.
+    pub fn load(reader: &Reader<'_>, table: &str, seq: u64, raw: bool) -> Result<Version> {
+        let (ingest_seq, _) = reader
+            .extract_at(table, seq)?
+            .ok_or_else(|| Error::UnknownTable(table.to_string()))?;
+        let def = super::ingest_record(reader, ingest_seq)?;
+        let mut v = Version {
+            table: table.to_string(),
+            seq,
+            ingest_seq,
+            distrusted: vec![false; def.header.len()],
+            def,
+            edits: HashMap::new(),
+            excluded: HashSet::new(),
+            n_edited: 0,
+        };
+        if raw {
+            return Ok(v);
+        }
+        let mut latest: HashMap<(String, usize), Option<String>> = HashMap::new();
+        for e in reader.cell_edits(table, ingest_seq, seq)? {
+            let col = v.col_idx(&e.column)?;
+            latest.insert((e.row, col), e.new);
+        }
+        v.n_edited = latest.len();
+        for ((row, col), value) in latest {
+            v.edits.entry(row).or_default().push((col, value));
+        }
+        for m in reader.marks(table, ingest_seq, seq)? {
+            match m.kind.as_str() {
+                "exclude" => {
+                    v.excluded.insert(m.target);
+                }
+                _ => {
+                    let col = v.col_idx(&m.target)?;
+                    v.distrusted[col] = true;
+                }
+            }
+        }
+        Ok(v)
+    }
+
+    /// Index of a column by name.
+    pub fn col_idx(&self, column: &str) -> Result<usize> {
+        self.def
+            .header
+            .iter()
+            .position(|h| h == column)
+            .ok_or_else(|| Error::UnknownColumn {
+                table: self.table.clone(),
+                column: column.to_string(),
+            })
+    }
+
+    /// Header names.
+    pub fn header(&self) -> &[String] {
+        &self.def.header
+    }
+
+    /// Whether column `idx` is distrusted.
+    pub fn is_distrusted(&self, idx: usize) -> bool {
+        self.distrusted[idx]
+    }
+
+    /// Distrusted column flags.
+    pub fn distrusted(&self) -> &[bool] {
+        &self.distrusted
+    }
+
+    /// Number of excluded rows.
+    pub fn n_excluded(&self) -> usize {
+        self.excluded.len()
+    }
+
+    /// Number of cells whose value differs from the raw extract by a fix.
+    pub fn n_edited(&self) -> usize {
+        self.n_edited
+    }
+
+    /// Stream every row of the version through `f`, in extract order.
+    pub fn for_each_row<F>(&self, reader: &Reader<'_>, mut f: F) -> Result<()>
+    where
+        F: FnMut(&RowView<'_>) -> Result<ControlFlow<()>>,
+    {
+        let blob = reader.open_blob(&self.def.extract)?;
+        let mut csv = CsvReader::new(blob, self.def.dialect.delimiter);
+        let mut rec = RawRecord::default();
+        let place = || format!("stored extract {}", self.def.extract.short());
+        let read = |csv: &mut CsvReader<_>, rec: &mut RawRecord| -> Result<bool> {
+            csv.read_record(rec).map_err(|e| match e {
+                ReadError::Csv(c) => Error::Corrupt(format!(
+                    "{} no longer parses at line {}: {}",
+                    place(),
+                    c.line,
+                    c.problem
+                )),
+                ReadError::Io(io) => Error::Corrupt(format!("{}: {io}", place())),
+            })
+        };
+        // The header was validated at ingest.
+        read(&mut csv, &mut rec)?;
+        let n_cols = self.def.header.len();
+        let key_idx: Vec<usize> = self
+            .def
+            .key
+            .iter()
+            .map(|k| self.col_idx(k))
+            .collect::<Result<_>>()?;
+        let mut text: Vec<String> = vec![String::new(); n_cols];
+        let mut cells: Vec<Option<String>> = vec![None; n_cols];
+        let mut id = RowId(String::new());
+        let mut pos = 0u64;
+        while read(&mut csv, &mut rec)? {
+            if rec.is_blank_line() && n_cols > 1 {
+                continue;
+            }
+            if rec.len() != n_cols {
+                return Err(Error::Corrupt(format!(
+                    "{} has a ragged row at line {}",
+                    place(),
+                    rec.line
+                )));
+            }
+            pos += 1;
+            for (i, field) in rec.iter().enumerate() {
+                decode_into(field, self.def.dialect.encoding, &mut text[i]).map_err(|_| {
+                    Error::Corrupt(format!("{} has bad text at line {}", place(), rec.line))
+                })?;
+            }
+            id.0.clear();
+            if key_idx.is_empty() {
+                use std::fmt::Write;
+                let _ = write!(id.0, "{pos}");
+            } else {
+                for (j, &k) in key_idx.iter().enumerate() {
+                    if j > 0 {
+                        id.0.push(KEY_SEPARATOR);
+                    }
+                    id.0.push_str(&text[k]);
+                }
+            }
+            for (cell, t) in cells.iter_mut().zip(&text) {
+                match cell {
+                    Some(c) => {
+                        c.clear();
+                        c.push_str(t);
+                    }
+                    None => *cell = Some(t.clone()),
+                }
+            }
+            if let Some(list) = self.edits.get(&id.0) {
+                for (col, value) in list {
+                    cells[*col] = value.clone();
+                }
+            }
+            let view = RowView {
+                pos,
+                id: &id,
+                cells: &cells,
+                excluded: self.excluded.contains(&id.0),
+            };
+            if f(&view)?.is_break() {
+                break;
+            }
+        }
+        Ok(())
+    }
+
+    /// The canonical hash of this version and its row count.
+    pub fn hash(&self, reader: &Reader<'_>) -> Result<(VersionHash, u64)> {
+        let mut h = VersionHashBuilder::new(self.header());
+        let mut n = 0;
+        self.for_each_row(reader, |row| {
+            h.row(row.id, row.excluded, row.cells);
+            n += 1;
+            Ok(ControlFlow::Continue(()))
+        })?;
+        Ok((h.finish(self.header(), &self.distrusted), n))
+    }
+
+    /// Find one row by id.
+    pub fn find_row(
+        &self,
+        reader: &Reader<'_>,
+        row: &RowId,
+    ) -> Result<Option<(u64, Vec<Option<String>>, bool)>> {
+        let mut found = None;
+        self.for_each_row(reader, |r| {
+            if r.id == row {
+                found = Some((r.pos, r.cells.to_vec(), r.excluded));
+                return Ok(ControlFlow::Break(()));
+            }
+            Ok(ControlFlow::Continue(()))
+        })?;
+        Ok(found)
+    }
+}
+
+/// Builds the canonical version hash: header, then each row (id, exclusion, cells), then the
+/// distrusted columns. Ingest and rebuild both use it, so they agree by construction.
+pub struct VersionHashBuilder {
+    h: VersionHasher,
+}
+
+impl VersionHashBuilder {
+    /// Start with the header.
+    pub fn new(header: &[String]) -> Self {
+        let mut h = VersionHasher::new();
+        for name in header {
+            h.item(1, Some(name));
+        }
+        VersionHashBuilder { h }
+    }
+
+    /// Add one row.
+    pub fn row(&mut self, id: &RowId, excluded: bool, cells: &[Option<String>]) {
+        self.h.item(2, Some(id.as_str()));
+        if excluded {
+            self.h.item(3, None);
+        }
+        for c in cells {
+            self.h.item(4, c.as_deref());
+        }
+    }
+
+    /// Add one raw row (not excluded, no missing cells), as ingest sees it.
+    pub fn raw_row(&mut self, id: &str, cells: &[String]) {
+        self.h.item(2, Some(id));
+        for c in cells {
+            self.h.item(4, Some(c));
+        }
+    }
+
+    /// Finish with the distrusted columns.
+    pub fn finish(mut self, header: &[String], distrusted: &[bool]) -> VersionHash {
+        for (name, d) in header.iter().zip(distrusted) {
+            if *d {
+                self.h.item(5, Some(name));
+            }
+        }
+        self.h.finish()
+    }
+}

@@ -1,0 +1,548 @@
+//! Raw extract bytes to an immutable stored snapshot. Never changes a value.
+//!
+//! One streaming pass reads the file once: every byte goes to the whole-file BLAKE3 hasher and
+//! into 1 MiB pieces that a second thread hashes and compresses, while this thread parses the
+//! records to validate them (header, field counts, encoding, key uniqueness) and computes the
+//! canonical version hash. Memory stays at a few pieces plus 8 bytes per row for the key check.
+//! Any problem aborts the surrounding transaction, so a bad file leaves the store unchanged.
+
+pub mod csv;
+
+use crate::error::{Error, Result};
+use crate::hash::{BlobId, ChunkId, Digest, VersionHash};
+use crate::history::version::VersionHashBuilder;
+use crate::model::{Dialect, IngestRecord, RowId, TextEncoding};
+use crate::store::WriteTx;
+use csv::{CsvReader, RawRecord, ReadError};
+use std::fs::File;
+use std::hash::{BuildHasher, Hasher};
+use std::io::Read;
+use std::path::Path;
+use std::sync::mpsc;
+
+/// Size of a stored piece of an extract.
+pub const PIECE_SIZE: usize = 1 << 20;
+/// zstd level for pieces: level 1 is as small as 3 on CSV and much faster.
+const ZSTD_LEVEL: i32 = 1;
+/// How many duplicate or offending keys an error lists.
+const LIST_AT_MOST: usize = 5;
+
+/// Knobs for an ingest.
+#[derive(Debug, Clone, Default)]
+pub struct IngestOptions {
+    /// Table name.
+    pub table: String,
+    /// Key columns (empty: rows are named by position).
+    pub key: Vec<String>,
+    /// Field delimiter; guessed from the extension and first line when `None`.
+    pub delimiter: Option<u8>,
+    /// Text encoding; UTF-8 when `None`.
+    pub encoding: Option<TextEncoding>,
+}
+
+/// What an ingest stored.
+#[derive(Debug, Clone)]
+pub struct IngestOutcome {
+    /// The record for the commit body.
+    pub record: IngestRecord,
+    /// The canonical hash of the raw version.
+    pub version: VersionHash,
+    /// Blank lines skipped.
+    pub blank_lines: u64,
+    /// Compressed bytes newly written (pieces already stored cost nothing).
+    pub new_bytes: u64,
+}
+
+/// Decode one field in `encoding` into `out` (cleared first).
+///
+/// On invalid UTF-8 returns the index of the first bad byte within the field.
+pub fn decode_into(bytes: &[u8], encoding: TextEncoding, out: &mut String) -> Result<(), usize> {
+    out.clear();
+    match encoding {
+        TextEncoding::Utf8 => match std::str::from_utf8(bytes) {
+            Ok(s) => {
+                out.push_str(s);
+                Ok(())
+            }
+            Err(e) => Err(e.valid_up_to()),
+        },
+        TextEncoding::Latin1 => {
+            out.extend(bytes.iter().map(|&b| char::from(b)));
+            Ok(())
+        }
+        TextEncoding::Windows1252 => {
+            let (text, _) = encoding_rs::WINDOWS_1252.decode_without_bom_handling(bytes);
+            out.push_str(&text);
+            Ok(())
+        }
+    }
+}
+
+/// Guess the delimiter from the file name and the first line.
+pub fn guess_delimiter(path: &Path, first_bytes: &[u8]) -> u8 {
+    let ext = path
+        .extension()
+        .and_then(|e| e.to_str())
+        .map(str::to_ascii_lowercase);
+    if matches!(ext.as_deref(), Some("tsv" | "tab")) {
+        return b'\t';
+    }
+    let line_end = memchr::memchr(b'\n', first_bytes).unwrap_or(first_bytes.len());
+    let line = &first_bytes[..line_end];
+    let mut best = (b',', 0usize);
+    for cand in [b',', b'\t', b';', b'|'] {
+        let n = line.iter().filter(|&&b| b == cand).count();
+        if n > best.1 {
+            best = (cand, n);
+        }
+    }
+    best.0
+}
+
+/// Reads the file, feeding the whole-file hash and the piece pipeline.
+struct Tee {
+    file: File,
+    hasher: blake3::Hasher,
+    piece: Vec<u8>,
+    to_worker: Option<mpsc::SyncSender<Vec<u8>>>,
+    n_bytes: u64,
+}
+
+impl Tee {
+    fn flush_piece(&mut self) -> std::io::Result<()> {
+        if self.piece.is_empty() {
+            return Ok(());
+        }
+        let piece = std::mem::replace(&mut self.piece, Vec::with_capacity(PIECE_SIZE));
+        if let Some(tx) = &self.to_worker {
+            tx.send(piece)
+                .map_err(|_| std::io::Error::other("compression thread stopped"))?;
+        }
+        Ok(())
+    }
+}
+
+impl Read for Tee {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let n = self.file.read(buf)?;
+        let mut data = &buf[..n];
+        self.hasher.update(data);
+        self.n_bytes += n as u64;
+        while !data.is_empty() {
+            let room = PIECE_SIZE - self.piece.len();
+            let take = room.min(data.len());
+            self.piece.extend_from_slice(&data[..take]);
+            data = &data[take..];
+            if self.piece.len() == PIECE_SIZE {
+                self.flush_piece()?;
+            }
+        }
+        Ok(n)
+    }
+}
+
+struct Piece {
+    id: ChunkId,
+    raw_len: u64,
+    compressed: Vec<u8>,
+}
+
+fn compress_worker(rx: mpsc::Receiver<Vec<u8>>, tx: mpsc::Sender<std::io::Result<Piece>>) {
+    let mut compressor = match zstd::bulk::Compressor::new(ZSTD_LEVEL) {
+        Ok(c) => c,
+        Err(e) => {
+            let _ = tx.send(Err(e));
+            return;
+        }
+    };
+    for piece in rx {
+        let id = ChunkId(Digest::of(&piece));
+        let result = compressor.compress(&piece).map(|compressed| Piece {
+            id,
+            raw_len: piece.len() as u64,
+            compressed,
+        });
+        if tx.send(result).is_err() {
+            return;
+        }
+    }
+}
+
+/// Open `path` with an error that says which file and what to do.
+pub fn open_input(path: &Path) -> Result<File> {
+    let file = File::open(path).map_err(|e| Error::io(path, e))?;
+    let meta = file.metadata().map_err(|e| Error::io(path, e))?;
+    if meta.is_dir() {
+        return Err(Error::BadFile {
+            path: path.to_path_buf(),
+            problem: "is a folder, not a file".into(),
+        });
+    }
+    Ok(file)
+}
+
+fn bad(path: &Path, line: u64, column: u64, problem: impl Into<String>) -> Error {
+    Error::BadExtract {
+        path: path.to_path_buf(),
+        line,
+        column,
+        problem: problem.into(),
+    }
+}
+
+fn csv_error(path: &Path, e: ReadError) -> Error {
+    match e {
+        ReadError::Csv(c) => bad(path, c.line, c.column, c.problem),
+        ReadError::Io(io) => {
+            // A corrupt stored piece surfaces as an io error carrying our own error.
+            Error::io(path, io)
+        }
+    }
+}
+
+/// Stream a file into the store as a new extract of `opts.table`, inside `tx`.
+///
+/// Validates everything an extract must satisfy; on any error nothing written here survives,
+/// because the caller drops the transaction.
+pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Result<IngestOutcome> {
+    let mut file = open_input(path)?;
+    let encoding = opts.encoding.unwrap_or(TextEncoding::Utf8);
+    // Peek at the start for the delimiter and the header's shape, then rewind.
+    let mut head = vec![0u8; 64 * 1024];
+    let n_head = read_full(&mut file, &mut head).map_err(|e| Error::io(path, e))?;
+    head.truncate(n_head);
+    if head.is_empty() {
+        return Err(Error::BadFile {
+            path: path.to_path_buf(),
+            problem: "the file is empty".into(),
+        });
+    }
+    let delimiter = opts
+        .delimiter
+        .unwrap_or_else(|| guess_delimiter(path, strip_bom(&head)));
+    use std::io::Seek;
+    file.rewind().map_err(|e| Error::io(path, e))?;
+
+    let (piece_tx, piece_rx) = mpsc::sync_channel::<Vec<u8>>(2);
+    let (done_tx, done_rx) = mpsc::channel();
+    let worker = std::thread::spawn(move || compress_worker(piece_rx, done_tx));
+    let tee = Tee {
+        file,
+        hasher: blake3::Hasher::new(),
+        piece: Vec::with_capacity(PIECE_SIZE),
+        to_worker: Some(piece_tx),
+        n_bytes: 0,
+    };
+    let mut reader = CsvReader::new(tee, delimiter);
+    let mut chunks: Vec<ChunkId> = Vec::new();
+    let mut new_bytes = 0u64;
+    let drain = |block: bool, chunks: &mut Vec<ChunkId>, new_bytes: &mut u64| -> Result<()> {
+        loop {
+            let next = if block {
+                match done_rx.recv() {
+                    Ok(p) => p,
+                    Err(_) => return Ok(()),
+                }
+            } else {
+                match done_rx.try_recv() {
+                    Ok(p) => p,
+                    Err(_) => return Ok(()),
+                }
+            };
+            let piece = next.map_err(|e| Error::io(path, e))?;
+            if !tx.read().has_chunk(&piece.id)? {
+                *new_bytes += piece.compressed.len() as u64;
+            }
+            tx.put_chunk(&piece.id, piece.raw_len, 1, &piece.compressed)?;
+            chunks.push(piece.id);
+        }
+    };
+
+    let result = (|| -> Result<(IngestRecord, VersionHash, u64)> {
+        let mut rec = RawRecord::default();
+        if !reader.read_record(&mut rec).map_err(|e| csv_error(path, e))? {
+            return Err(Error::BadFile {
+                path: path.to_path_buf(),
+                problem: "the file is empty".into(),
+            });
+        }
+        let mut text = String::new();
+        let mut header: Vec<String> = Vec::with_capacity(rec.len());
+        for (i, field) in rec.iter().enumerate() {
+            decode_into(field, encoding, &mut text)
+                .map_err(|at| utf8_error(path, &rec, i, at))?;
+            let name = text.trim().to_string();
+            if name.is_empty() {
+                return Err(bad(path, rec.line, i as u64 + 1, "empty column name in the header"));
+            }
+            if let Some(j) = header.iter().position(|h| *h == name) {
+                return Err(bad(
+                    path,
+                    rec.line,
+                    i as u64 + 1,
+                    format!("duplicate column name '{name}' (also column {})", j + 1),
+                ));
+            }
+            header.push(name);
+        }
+        let header_line = rec.line;
+        let crlf = line_ends_crlf(&head);
+        let quote_all = header_quoted(strip_bom(&head), delimiter, header.len());
+        let mut key_idx = Vec::new();
+        for k in &opts.key {
+            let idx = header.iter().position(|h| h == k).ok_or_else(|| Error::BadFile {
+                path: path.to_path_buf(),
+                problem: format!(
+                    "key column '{k}' is not in the header (columns: {})",
+                    header.join(", ")
+                ),
+            })?;
+            if key_idx.contains(&idx) {
+                return Err(Error::Invalid(format!("key column '{k}' is named twice")));
+            }
+            key_idx.push(idx);
+        }
+
+        let mut hasher = VersionHashBuilder::new(&header);
+        let build = std::hash::BuildHasherDefault::<std::collections::hash_map::DefaultHasher>::default();
+        let mut key_hashes: Vec<u64> = Vec::new();
+        let mut n_rows = 0u64;
+        let mut blank_lines = 0u64;
+        let mut cells: Vec<String> = vec![String::new(); header.len()];
+        let mut row_id = String::new();
+        loop {
+            if !reader.read_record(&mut rec).map_err(|e| csv_error(path, e))? {
+                break;
+            }
+            drain(false, &mut chunks, &mut new_bytes)?;
+            if rec.is_blank_line() && header.len() > 1 {
+                blank_lines += 1;
+                continue;
+            }
+            if rec.len() != header.len() {
+                return Err(bad(
+                    path,
+                    rec.line,
+                    0,
+                    format!(
+                        "row has {} fields but the header (line {header_line}) has {}",
+                        rec.len(),
+                        header.len()
+                    ),
+                ));
+            }
+            n_rows += 1;
+            for (i, field) in rec.iter().enumerate() {
+                decode_into(field, encoding, &mut cells[i])
+                    .map_err(|at| utf8_error(path, &rec, i, at))?;
+            }
+            row_id.clear();
+            if key_idx.is_empty() {
+                use std::fmt::Write;
+                let _ = write!(row_id, "{n_rows}");
+            } else {
+                for (j, &k) in key_idx.iter().enumerate() {
+                    if cells[k].trim().is_empty() {
+                        return Err(bad(
+                            path,
+                            rec.line,
+                            k as u64 + 1,
+                            format!("key column '{}' is blank", header[k]),
+                        ));
+                    }
+                    if j > 0 {
+                        row_id.push(crate::model::KEY_SEPARATOR);
+                    }
+                    row_id.push_str(&cells[k]);
+                }
+                let mut h = build.build_hasher();
+                h.write(row_id.as_bytes());
+                key_hashes.push(h.finish());
+            }
+            hasher.raw_row(&row_id, &cells);
+        }
+        if n_rows == 0 {
+            return Err(Error::BadFile {
+                path: path.to_path_buf(),
+                problem: "the file has a header but no data rows".into(),
+            });
+        }
+        if !key_idx.is_empty() {
+            key_hashes.sort_unstable();
+            let dup: Vec<u64> = key_hashes
+                .windows(2)
+                .filter(|w| w[0] == w[1])
+                .map(|w| w[0])
+                .collect();
+            if !dup.is_empty() {
+                if let Some(msg) = list_duplicates(path, delimiter, encoding, &key_idx, &header, &dup)? {
+                    return Err(Error::BadFile {
+                        path: path.to_path_buf(),
+                        problem: msg,
+                    });
+                }
+            }
+        }
+        let dialect = Dialect {
+            delimiter,
+            crlf,
+            bom: reader.saw_bom(),
+            quote_all,
+            encoding,
+        };
+        let record = IngestRecord {
+            table: opts.table.clone(),
+            extract: BlobId(Digest([0; 32])),
+            file_name: path
+                .file_name()
+                .map(|n| n.to_string_lossy().into_owned())
+                .unwrap_or_default(),
+            n_bytes: 0,
+            header,
+            key: opts.key.clone(),
+            dialect,
+            n_rows,
+        };
+        let distrusted = vec![false; record.header.len()];
+        let version = hasher.finish(&record.header, &distrusted);
+        Ok((record, version, blank_lines))
+    })();
+
+    // Whatever happened, stop the worker cleanly before returning.
+    let mut tee = reader_into_tee(reader);
+    let flushed = if result.is_ok() { tee.flush_piece() } else { Ok(()) };
+    tee.to_worker = None;
+    let drained = if result.is_ok() {
+        drain(true, &mut chunks, &mut new_bytes)
+    } else {
+        Ok(())
+    };
+    let _ = worker.join();
+    let (mut record, version, blank_lines) = result?;
+    flushed.map_err(|e| Error::io(path, e))?;
+    drained?;
+    let extract = BlobId(Digest(*tee.hasher.finalize().as_bytes()));
+    record.extract = extract;
+    record.n_bytes = tee.n_bytes;
+    tx.put_blob(&extract, tee.n_bytes, &chunks)?;
+    Ok(IngestOutcome {
+        record,
+        version,
+        blank_lines,
+        new_bytes,
+    })
+}
+
+fn reader_into_tee(reader: CsvReader<Tee>) -> Tee {
+    reader.into_inner()
+}
+
+fn read_full(file: &mut File, buf: &mut [u8]) -> std::io::Result<usize> {
+    let mut n = 0;
+    while n < buf.len() {
+        match file.read(&mut buf[n..]) {
+            Ok(0) => break,
+            Ok(k) => n += k,
+            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+            Err(e) => return Err(e),
+        }
+    }
+    Ok(n)
+}
+
+fn strip_bom(b: &[u8]) -> &[u8] {
+    b.strip_prefix(&[0xEF, 0xBB, 0xBF]).unwrap_or(b)
+}
+
+fn line_ends_crlf(head: &[u8]) -> bool {
+    match memchr::memchr(b'\n', head) {
+        Some(i) => i > 0 && head[i - 1] == b'\r',
+        None => false,
+    }
+}
+
+/// Whether every header field is written in quotes (then export quotes every field too).
+fn header_quoted(head: &[u8], delimiter: u8, n_fields: usize) -> bool {
+    let end = memchr::memchr2(b'\n', b'\r', head).unwrap_or(head.len());
+    let line = &head[..end];
+    if line.first() != Some(&b'"') || line.last() != Some(&b'"') {
+        return false;
+    }
+    let sep = [b'"', delimiter, b'"'];
+    line.windows(3).filter(|w| *w == sep).count() + 1 == n_fields
+}
+
+fn utf8_error(path: &Path, rec: &RawRecord, field: usize, at: usize) -> Error {
+    bad(
+        path,
+        rec.line,
+        field as u64 + 1,
+        format!(
+            "invalid UTF-8 at byte {at} of the field (the record starts at byte offset {}); \
+             if the file is not UTF-8, give --encoding windows-1252 or --encoding latin-1",
+            rec.offset
+        ),
+    )
+}
+
+/// Second pass over the file to name the rows behind duplicate key hashes.
+fn list_duplicates(
+    path: &Path,
+    delimiter: u8,
+    encoding: TextEncoding,
+    key_idx: &[usize],
+    header: &[String],
+    dup_hashes: &[u64],
+) -> Result<Option<String>> {
+    let build = std::hash::BuildHasherDefault::<std::collections::hash_map::DefaultHasher>::default();
+    let wanted: std::collections::HashSet<u64> = dup_hashes.iter().copied().collect();
+    let mut seen: std::collections::HashMap<String, Vec<u64>> = Default::default();
+    let mut reader = CsvReader::new(open_input(path)?, delimiter);
+    let mut rec = RawRecord::default();
+    let mut first = true;
+    let mut text = String::new();
+    while reader.read_record(&mut rec).map_err(|e| csv_error(path, e))? {
+        if first || rec.is_blank_line() {
+            first = false;
+            continue;
+        }
+        let mut key = String::new();
+        for (j, &k) in key_idx.iter().enumerate() {
+            decode_into(rec.get(k).unwrap_or_default(), encoding, &mut text)
+                .map_err(|at| utf8_error(path, &rec, k, at))?;
+            if j > 0 {
+                key.push(crate::model::KEY_SEPARATOR);
+            }
+            key.push_str(&text);
+        }
+        let mut h = build.build_hasher();
+        h.write(key.as_bytes());
+        if wanted.contains(&h.finish()) {
+            seen.entry(key).or_default().push(rec.line);
+        }
+    }
+    let mut dups: Vec<(String, Vec<u64>)> = seen.into_iter().filter(|(_, l)| l.len() > 1).collect();
+    if dups.is_empty() {
+        return Ok(None);
+    }
+    dups.sort_by_key(|(_, lines)| lines[1]);
+    let names: Vec<&str> = key_idx.iter().map(|&k| header[k].as_str()).collect();
+    let shown: Vec<String> = dups
+        .iter()
+        .take(LIST_AT_MOST)
+        .map(|(k, lines)| {
+            let lines: Vec<String> = lines.iter().map(u64::to_string).collect();
+            format!("'{}' on lines {}", RowId(k.clone()), lines.join(", "))
+        })
+        .collect();
+    let more = if dups.len() > LIST_AT_MOST {
+        format!(" and {} more", dups.len() - LIST_AT_MOST)
+    } else {
+        String::new()
+    };
+    Ok(Some(format!(
+        "key ({}) is not unique: {}{more}; choose a key that identifies each row, or ingest without --key to name rows by position",
+        names.join(", "),
+        shown.join("; ")
+    )))
+}

@@ -1,0 +1,437 @@
+//! Plain data: rows, fixes, cell edits, commit bodies and dialects. No I/O.
+//!
+//! A commit body is encoded canonically with postcard (a frozen wire format); every collection in
+//! a hashed struct is a `Vec` in a defined order, never a hash map, so the same body always gives
+//! the same bytes and so the same id.
+
+use crate::hash::{BlobId, CommitId, Digest, VersionHash};
+use serde::{Deserialize, Serialize};
+use std::fmt;
+
+/// The version of the commit body format written by this build.
+pub const BODY_FORMAT: u32 = 1;
+
+/// Separates the values of a composite key inside a [`RowId`].
+pub const KEY_SEPARATOR: char = '\u{1f}';
+
+/// The identity of a row: its key value (composite keys joined by [`KEY_SEPARATOR`]) or, for a
+/// table without a key, its 1-based position in the extract as decimal text.
+#[derive(Clone, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
+pub struct RowId(pub String);
+
+impl RowId {
+    /// The canonical text stored in the index.
+    pub fn as_str(&self) -> &str {
+        &self.0
+    }
+
+    /// The row id of a keyed row from its key values.
+    pub fn from_key_values<'a>(values: impl IntoIterator<Item = &'a str>) -> Self {
+        let mut out = String::new();
+        for (i, v) in values.into_iter().enumerate() {
+            if i > 0 {
+                out.push(KEY_SEPARATOR);
+            }
+            out.push_str(v);
+        }
+        RowId(out)
+    }
+
+    /// The row id of a keyless row from its 1-based position.
+    pub fn from_position(pos: u64) -> Self {
+        RowId(pos.to_string())
+    }
+
+    /// Parse what a user typed: composite key values are separated by commas.
+    pub fn parse_user(text: &str, n_key_columns: usize) -> Self {
+        if n_key_columns > 1 {
+            RowId(text.replace(',', &KEY_SEPARATOR.to_string()))
+        } else {
+            RowId(text.to_string())
+        }
+    }
+}
+
+impl fmt::Display for RowId {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(&self.0.replace(KEY_SEPARATOR, ","))
+    }
+}
+
+impl fmt::Debug for RowId {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "RowId({self})")
+    }
+}
+
+/// A legacy single-byte encoding or UTF-8.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub enum TextEncoding {
+    /// UTF-8, with or without a byte-order mark.
+    Utf8,
+    /// Windows code page 1252 (Western European).
+    Windows1252,
+    /// ISO 8859-1: each byte is the code point of the same number.
+    Latin1,
+}
+
+impl TextEncoding {
+    /// Parse a user-facing encoding name.
+    pub fn parse(name: &str) -> Option<Self> {
+        match name.to_ascii_lowercase().replace('_', "-").as_str() {
+            "utf-8" | "utf8" => Some(TextEncoding::Utf8),
+            "windows-1252" | "cp1252" | "win-1252" => Some(TextEncoding::Windows1252),
+            "latin-1" | "latin1" | "iso-8859-1" | "iso8859-1" => Some(TextEncoding::Latin1),
+            _ => None,
+        }
+    }
+
+    /// The canonical name.
+    pub fn name(&self) -> &'static str {
+        match self {
+            TextEncoding::Utf8 => "utf-8",
+            TextEncoding::Windows1252 => "windows-1252",
+            TextEncoding::Latin1 => "latin-1",
+        }
+    }
+}
+
+/// How an extract is written: what export reproduces by default.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Dialect {
+    /// Field delimiter byte.
+    pub delimiter: u8,
+    /// Records end with CR LF (else LF).
+    pub crlf: bool,
+    /// The file starts with a UTF-8 byte-order mark.
+    pub bom: bool,
+    /// Every header field was quoted, so export quotes every field.
+    pub quote_all: bool,
+    /// The extract's text encoding.
+    pub encoding: TextEncoding,
+}
+
+impl Default for Dialect {
+    fn default() -> Self {
+        Dialect {
+            delimiter: b',',
+            crlf: false,
+            bom: false,
+            quote_all: false,
+            encoding: TextEncoding::Utf8,
+        }
+    }
+}
+
+/// A signer as named inside a commit body.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Author {
+    /// Display name.
+    pub name: String,
+    /// E-mail, when given.
+    pub email: Option<String>,
+    /// Ed25519 public key.
+    pub key: [u8; 32],
+}
+
+/// A file attached to a fix, stored content-addressed.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Evidence {
+    /// The file name as given (no folders).
+    pub name: String,
+    /// BLAKE3 of the file's bytes.
+    pub blob: BlobId,
+    /// Size in bytes.
+    pub n_bytes: u64,
+}
+
+/// What one fix does.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub enum FixAction {
+    /// Set one cell to a value, or to missing when `value` is `None`.
+    Set {
+        /// Row.
+        row: RowId,
+        /// Column name.
+        column: String,
+        /// New value.
+        value: Option<String>,
+    },
+    /// Replace exact values across a column.
+    Recode {
+        /// Column name.
+        column: String,
+        /// (from, to) pairs, applied to each cell once, first match wins.
+        pairs: Vec<(String, String)>,
+    },
+    /// Declare values of a column to be missing-value codes; matching cells become missing.
+    Missing {
+        /// Column name.
+        column: String,
+        /// The codes.
+        codes: Vec<String>,
+    },
+    /// Leave a row out of the cleaned data.
+    Exclude {
+        /// Row.
+        row: RowId,
+    },
+    /// Mark a column as not to be trusted; export leaves it out.
+    Distrust {
+        /// Column name.
+        column: String,
+    },
+}
+
+impl FixAction {
+    /// A short lowercase name of the kind of fix.
+    pub fn kind(&self) -> &'static str {
+        match self {
+            FixAction::Set { .. } => "set",
+            FixAction::Recode { .. } => "recode",
+            FixAction::Missing { .. } => "missing",
+            FixAction::Exclude { .. } => "exclude",
+            FixAction::Distrust { .. } => "distrust",
+        }
+    }
+
+    /// The column this fix names, if any.
+    pub fn column(&self) -> Option<&str> {
+        match self {
+            FixAction::Set { column, .. }
+            | FixAction::Recode { column, .. }
+            | FixAction::Missing { column, .. }
+            | FixAction::Distrust { column } => Some(column),
+            FixAction::Exclude { .. } => None,
+        }
+    }
+
+    /// One line for people.
+    pub fn describe(&self) -> String {
+        let show = |v: &Option<String>| match v {
+            Some(v) => format!("'{v}'"),
+            None => "missing".to_string(),
+        };
+        match self {
+            FixAction::Set { row, column, value } => {
+                format!("set {row} {column} to {}", show(value))
+            }
+            FixAction::Recode { column, pairs } => {
+                let list: Vec<String> = pairs
+                    .iter()
+                    .take(3)
+                    .map(|(a, b)| format!("'{a}' -> '{b}'"))
+                    .collect();
+                let more = if pairs.len() > 3 {
+                    format!(" and {} more", pairs.len() - 3)
+                } else {
+                    String::new()
+                };
+                format!("recode {column}: {}{more}", list.join(", "))
+            }
+            FixAction::Missing { column, codes } => {
+                format!("missing codes for {column}: {}", codes.join(", "))
+            }
+            FixAction::Exclude { row } => format!("exclude row {row}"),
+            FixAction::Distrust { column } => format!("distrust column {column}"),
+        }
+    }
+}
+
+/// One recorded change with its reason.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Fix {
+    /// The table it applies to.
+    pub table: String,
+    /// What it does.
+    pub action: FixAction,
+    /// Why (never empty).
+    pub why: String,
+    /// Attached files.
+    pub evidence: Vec<Evidence>,
+    /// The expert consulted, if any.
+    pub consulted: Option<String>,
+}
+
+/// One cell changed by a fix, with the value before and after. `None` is missing.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct CellEdit {
+    /// Row.
+    pub row: RowId,
+    /// Column name.
+    pub column: String,
+    /// Value before the fix.
+    pub old: Option<String>,
+    /// Value after the fix.
+    pub new: Option<String>,
+}
+
+/// A fix as committed: the fix and the cells it resolved to.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct FixRecord {
+    /// The fix.
+    pub fix: Fix,
+    /// The cells it changed, in row order.
+    pub edits: Vec<CellEdit>,
+}
+
+/// A new extract of a table.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct IngestRecord {
+    /// Table name.
+    pub table: String,
+    /// The extract's id (BLAKE3 of the file).
+    pub extract: BlobId,
+    /// The file name as given (no folders).
+    pub file_name: String,
+    /// File size.
+    pub n_bytes: u64,
+    /// Header names in order.
+    pub header: Vec<String>,
+    /// Key column names (empty: rows are named by position).
+    pub key: Vec<String>,
+    /// How the file is written.
+    pub dialect: Dialect,
+    /// Number of data rows.
+    pub n_rows: u64,
+}
+
+/// What a commit records.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub enum Change {
+    /// A new extract.
+    Ingest(IngestRecord),
+    /// Fixes, in the order they were recorded.
+    Fixes(Vec<FixRecord>),
+}
+
+/// The recorded hash of a table version produced by a commit.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct TableVersion {
+    /// Table.
+    pub table: String,
+    /// Canonical hash of header, cells and marks.
+    pub hash: VersionHash,
+    /// Rows in the version, excluded rows included.
+    pub n_rows: u64,
+}
+
+/// The signed content of a commit.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct CommitBody {
+    /// Body format version.
+    pub format: u32,
+    /// 1-based sequence number in the store.
+    pub seq: u64,
+    /// The previous commit's id.
+    pub parent: Option<CommitId>,
+    /// Who signed.
+    pub author: Author,
+    /// ISO 8601 / RFC 3339 UTC time.
+    pub time: String,
+    /// Commit message.
+    pub message: String,
+    /// What it records.
+    pub change: Change,
+    /// The table versions it produces.
+    pub versions: Vec<TableVersion>,
+}
+
+impl CommitBody {
+    /// The canonical bytes (postcard).
+    pub fn encode(&self) -> Vec<u8> {
+        postcard::to_stdvec(self).expect("commit bodies hold only serialisable plain data")
+    }
+
+    /// Decode canonical bytes.
+    pub fn decode(bytes: &[u8]) -> crate::Result<Self> {
+        Ok(postcard::from_bytes(bytes)?)
+    }
+
+    /// The commit id of these bytes.
+    pub fn id_of(bytes: &[u8]) -> CommitId {
+        CommitId(Digest::of(bytes))
+    }
+
+    /// The tables this commit changes.
+    pub fn tables(&self) -> Vec<&str> {
+        match &self.change {
+            Change::Ingest(r) => vec![r.table.as_str()],
+            Change::Fixes(list) => {
+                let mut out: Vec<&str> = Vec::new();
+                for r in list {
+                    if !out.contains(&r.fix.table.as_str()) {
+                        out.push(&r.fix.table);
+                    }
+                }
+                out
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn body() -> CommitBody {
+        CommitBody {
+            format: BODY_FORMAT,
+            seq: 2,
+            parent: Some(CommitId(Digest::of(b"parent"))),
+            author: Author {
+                name: "Steward".into(),
+                email: None,
+                key: [7; 32],
+            },
+            time: "2026-10-01T09:00:00Z".into(),
+            message: "first pass".into(),
+            change: Change::Fixes(vec![FixRecord {
+                fix: Fix {
+                    table: "samples".into(),
+                    action: FixAction::Set {
+                        row: RowId("S-1".into()),
+                        column: "ph".into(),
+                        value: Some("7.1".into()),
+                    },
+                    why: "lab sheet".into(),
+                    evidence: vec![],
+                    consulted: None,
+                },
+                edits: vec![CellEdit {
+                    row: RowId("S-1".into()),
+                    column: "ph".into(),
+                    old: Some("71".into()),
+                    new: Some("7.1".into()),
+                }],
+            }]),
+            versions: vec![],
+        }
+    }
+
+    #[test]
+    fn body_round_trips_and_encoding_is_stable() {
+        let b = body();
+        let bytes = b.encode();
+        assert_eq!(CommitBody::decode(&bytes).unwrap(), b);
+        assert_eq!(bytes, body().encode());
+        let mut other = body();
+        other.message.push('!');
+        assert_ne!(CommitBody::id_of(&other.encode()), CommitBody::id_of(&bytes));
+    }
+
+    #[test]
+    fn row_ids_show_composite_keys_with_commas() {
+        let r = RowId::from_key_values(["A1", "2026-10-01"]);
+        assert_eq!(r.to_string(), "A1,2026-10-01");
+        assert_eq!(RowId::parse_user("A1,2026-10-01", 2), r);
+        assert_eq!(RowId::parse_user("A,1", 1).as_str(), "A,1");
+    }
+
+    #[test]
+    fn encodings_parse() {
+        assert_eq!(TextEncoding::parse("CP1252"), Some(TextEncoding::Windows1252));
+        assert_eq!(TextEncoding::parse("ISO-8859-1"), Some(TextEncoding::Latin1));
+        assert_eq!(TextEncoding::parse("ebcdic"), None);
+    }
+}

@@ -1,0 +1,114 @@
+-- emend store schema, version 1 (PRAGMA user_version = 1).
+-- Objects (chunk, blob, blob_chunk, commit_log) are append-only: triggers refuse updates and
+-- deletes. Index tables (cell_edit, mark, version_index, extract_index) are derived from commit
+-- bodies inside the same transaction as the commit, and `verify` checks them against the bodies.
+
+CREATE TABLE store_meta (
+    name  TEXT PRIMARY KEY,
+    value TEXT NOT NULL
+) STRICT;
+
+-- A compressed piece of a stored file, addressed by BLAKE3 of its uncompressed bytes.
+CREATE TABLE chunk (
+    id      BLOB PRIMARY KEY,
+    raw_len INTEGER NOT NULL,
+    codec   INTEGER NOT NULL,  -- 0 = stored, 1 = zstd
+    data    BLOB NOT NULL
+) STRICT;
+
+-- A stored file (an extract or an evidence file), addressed by BLAKE3 of its bytes.
+CREATE TABLE blob (
+    id       BLOB PRIMARY KEY,
+    n_bytes  INTEGER NOT NULL,
+    n_chunks INTEGER NOT NULL
+) STRICT;
+
+CREATE TABLE blob_chunk (
+    blob  BLOB NOT NULL REFERENCES blob(id),
+    idx   INTEGER NOT NULL,
+    chunk BLOB NOT NULL REFERENCES chunk(id),
+    PRIMARY KEY (blob, idx)
+) STRICT, WITHOUT ROWID;
+
+-- The hash chain. `body` is the canonical postcard encoding; `id` = BLAKE3(body);
+-- `signature` = Ed25519 over `id` by the key named in the body.
+CREATE TABLE commit_log (
+    seq       INTEGER PRIMARY KEY,
+    id        BLOB NOT NULL UNIQUE,
+    body      BLOB NOT NULL,
+    signature BLOB NOT NULL
+) STRICT;
+
+-- Keys the store trusts. Trust is recorded here, outside the chain; `verify --trust FILE`
+-- lets an auditor decide trust without believing this list.
+CREATE TABLE signer (
+    key      BLOB PRIMARY KEY,
+    name     TEXT NOT NULL,
+    email    TEXT,
+    added_at TEXT NOT NULL
+) STRICT;
+
+-- Fixes recorded but not yet committed, in the order they were recorded.
+CREATE TABLE pending (
+    id       INTEGER PRIMARY KEY AUTOINCREMENT,
+    tbl      TEXT NOT NULL,
+    fix      BLOB NOT NULL,   -- postcard of model::Fix
+    added_at TEXT NOT NULL
+) STRICT;
+
+-- Derived: one row per ingest commit.
+CREATE TABLE extract_index (
+    tbl     TEXT NOT NULL,
+    seq     INTEGER NOT NULL REFERENCES commit_log(seq),
+    extract BLOB NOT NULL REFERENCES blob(id),
+    PRIMARY KEY (tbl, seq)
+) STRICT, WITHOUT ROWID;
+
+-- Derived: one row per cell edit in a fix commit.
+CREATE TABLE cell_edit (
+    tbl     TEXT NOT NULL,
+    row_id  TEXT NOT NULL,
+    col     TEXT NOT NULL,
+    seq     INTEGER NOT NULL REFERENCES commit_log(seq),
+    fix_idx INTEGER NOT NULL,
+    old     TEXT,
+    new     TEXT,
+    PRIMARY KEY (tbl, row_id, col, seq, fix_idx)
+) STRICT, WITHOUT ROWID;
+CREATE INDEX cell_edit_by_seq ON cell_edit (tbl, seq);
+
+-- Derived: row exclusions and column distrust.
+CREATE TABLE mark (
+    tbl     TEXT NOT NULL,
+    kind    TEXT NOT NULL CHECK (kind IN ('exclude', 'distrust')),
+    target  TEXT NOT NULL,
+    seq     INTEGER NOT NULL REFERENCES commit_log(seq),
+    fix_idx INTEGER NOT NULL,
+    PRIMARY KEY (tbl, kind, target, seq, fix_idx)
+) STRICT, WITHOUT ROWID;
+
+-- Derived: the version hash each commit recorded for each table it changed.
+CREATE TABLE version_index (
+    tbl    TEXT NOT NULL,
+    seq    INTEGER NOT NULL REFERENCES commit_log(seq),
+    hash   BLOB NOT NULL,
+    n_rows INTEGER NOT NULL,
+    PRIMARY KEY (tbl, seq)
+) STRICT, WITHOUT ROWID;
+
+CREATE TRIGGER chunk_no_update BEFORE UPDATE ON chunk
+BEGIN SELECT RAISE(ABORT, 'stored chunks are immutable'); END;
+CREATE TRIGGER chunk_no_delete BEFORE DELETE ON chunk
+BEGIN SELECT RAISE(ABORT, 'stored chunks are immutable'); END;
+CREATE TRIGGER blob_no_update BEFORE UPDATE ON blob
+BEGIN SELECT RAISE(ABORT, 'stored files are immutable'); END;
+CREATE TRIGGER blob_no_delete BEFORE DELETE ON blob
+BEGIN SELECT RAISE(ABORT, 'stored files are immutable'); END;
+CREATE TRIGGER blob_chunk_no_update BEFORE UPDATE ON blob_chunk
+BEGIN SELECT RAISE(ABORT, 'stored files are immutable'); END;
+CREATE TRIGGER blob_chunk_no_delete BEFORE DELETE ON blob_chunk
+BEGIN SELECT RAISE(ABORT, 'stored files are immutable'); END;
+CREATE TRIGGER commit_no_update BEFORE UPDATE ON commit_log
+BEGIN SELECT RAISE(ABORT, 'commits are immutable'); END;
+CREATE TRIGGER commit_no_delete BEFORE DELETE ON commit_log
+BEGIN SELECT RAISE(ABORT, 'commits are immutable'); END;
