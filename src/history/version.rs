@@ -114,6 +114,13 @@ impl Version {
         &self.distrusted
     }
 
+    /// Whether a fix up to this version set the cell at (`row`, column index `col`).
+    pub fn is_edited(&self, row: &RowId, col: usize) -> bool {
+        self.edits
+            .get(row.as_str())
+            .is_some_and(|list| list.iter().any(|(c, _)| *c == col))
+    }
+
     /// Number of excluded rows.
     pub fn n_excluded(&self) -> usize {
         self.excluded.len()

@@ -1,0 +1,120 @@
+//! Printing: styles that appear only on a terminal (and never with NO_COLOR), plain aligned
+//! tables, JSON, and the error format `emend: error: ...` followed by `hint: ...`.
+
+use anstyle::{AnsiColor, Style};
+use std::io::Write;
+
+/// Headings and names.
+pub const BOLD: Style = Style::new().bold();
+/// Quiet detail (ids, times).
+pub const DIM: Style = Style::new().dimmed();
+/// Something went right.
+pub const GOOD: Style = Style::new().fg_color(Some(anstyle::Color::Ansi(AnsiColor::Green)));
+/// Something needs attention.
+pub const BAD: Style = Style::new()
+    .fg_color(Some(anstyle::Color::Ansi(AnsiColor::Red)))
+    .bold();
+/// A value that was changed by a fix.
+pub const CHANGED: Style = Style::new().fg_color(Some(anstyle::Color::Ansi(AnsiColor::Blue)));
+
+/// Standard output that strips styles when it is not a terminal or NO_COLOR is set.
+pub fn stdout() -> anstream::AutoStream<std::io::StdoutLock<'static>> {
+    anstream::AutoStream::auto(std::io::stdout().lock())
+}
+
+/// Wrap `text` in `style`.
+pub fn paint(style: Style, text: impl std::fmt::Display) -> String {
+    format!("{style}{text}{style:#}")
+}
+
+/// Print an error and the hint the library has for it.
+pub fn error(err: &anyhow::Error) {
+    let mut e = anstream::stderr();
+    let _ = writeln!(e, "{} {err:#}", paint(BAD, "emend: error:"));
+    let hint = err
+        .chain()
+        .find_map(|c| c.downcast_ref::<emend::Error>())
+        .and_then(emend::Error::hint);
+    if let Some(h) = hint {
+        let _ = writeln!(e, "{} {h}", paint(BOLD, "hint:"));
+    }
+}
+
+/// Print a JSON value followed by a newline.
+pub fn json(value: &serde_json::Value) -> anyhow::Result<()> {
+    let mut o = std::io::stdout().lock();
+    serde_json::to_writer_pretty(&mut o, value)?;
+    writeln!(o)?;
+    Ok(())
+}
+
+/// Render rows as a plain table with aligned columns; cells longer than `max_width` characters
+/// are cut with an ellipsis. `styles` gives an optional style per cell.
+pub fn table(header: &[String], rows: &[Vec<(String, Option<Style>)>], max_width: usize) -> String {
+    let cut = |s: &str| -> String {
+        let clean: String = s
+            .chars()
+            .map(|c| if c == '\n' || c == '\r' || c == '\t' { ' ' } else { c })
+            .collect();
+        if clean.chars().count() > max_width {
+            let mut t: String = clean.chars().take(max_width.saturating_sub(1)).collect();
+            t.push('…');
+            t
+        } else {
+            clean
+        }
+    };
+    let mut widths: Vec<usize> = header.iter().map(|h| cut(h).chars().count()).collect();
+    let cells: Vec<Vec<(String, Option<Style>)>> = rows
+        .iter()
+        .map(|r| r.iter().map(|(t, s)| (cut(t), *s)).collect())
+        .collect();
+    for r in &cells {
+        for (i, (t, _)) in r.iter().enumerate() {
+            if i < widths.len() {
+                widths[i] = widths[i].max(t.chars().count());
+            }
+        }
+    }
+    let mut out = String::new();
+    let line = |out: &mut String, r: &[(String, Option<Style>)]| {
+        for (i, (t, s)) in r.iter().enumerate() {
+            let pad = widths[i].saturating_sub(t.chars().count());
+            let last = i + 1 == r.len();
+            match s {
+                Some(st) => out.push_str(&paint(*st, t)),
+                None => out.push_str(t),
+            }
+            if !last {
+                out.push_str(&" ".repeat(pad + 2));
+            }
+        }
+        out.push('\n');
+    };
+    let head: Vec<(String, Option<Style>)> = header.iter().map(|h| (cut(h), Some(BOLD))).collect();
+    line(&mut out, &head);
+    for r in &cells {
+        line(&mut out, r);
+    }
+    out
+}
+
+/// Show a cell value for people: missing is `<missing>`.
+pub fn cell(v: &Option<String>) -> String {
+    match v {
+        Some(s) => s.clone(),
+        None => "<missing>".into(),
+    }
+}
+
+/// Quote a value for a command line the user can paste.
+pub fn shell_quote(s: &str) -> String {
+    if !s.is_empty()
+        && s.chars()
+            .all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.' | '/' | ':' | ','))
+    {
+        s.to_string()
+    } else {
+        format!("'{}'", s.replace('\'', "'\\''"))
+    }
+}
