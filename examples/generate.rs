@@ -71,7 +71,8 @@ fn row(rng: &mut Rng, i: u64, demo: bool) -> Vec<String> {
     let turb = rng.normal(8.0, 3.0).abs();
     let mut turb_s = format!("{turb:.1}");
     let oxygen = rng.normal(9.0, 1.2);
-    let mut weather = WEATHER[rng.below(if day > 330 || day < 60 { 5 } else { 4 }) as usize].to_string();
+    let mut weather =
+        WEATHER[rng.below(if day > 330 || day < 60 { 5 } else { 4 }) as usize].to_string();
     let notes = NOTES[rng.below(NOTES.len() as u64) as usize].to_string();
     let roll = rng.below(1000);
     // Planted problems, at rates that stand out in a profile.
@@ -94,7 +95,13 @@ fn row(rng: &mut Rng, i: u64, demo: bool) -> Vec<String> {
     }
     let w = rng.below(1000);
     if w < 4 {
-        weather = ["light drizzle then sun", "overcast-ish", "rain?", "windy, dry"][w as usize].into();
+        weather = [
+            "light drizzle then sun",
+            "overcast-ish",
+            "rain?",
+            "windy, dry",
+        ][w as usize]
+            .into();
     }
     if demo {
         match i {
@@ -144,7 +151,9 @@ fn main() {
             "--rows" => rows = args.next().and_then(|v| v.parse().ok()).expect("--rows N"),
             "--month" => month = args.next().and_then(|v| v.parse().ok()).expect("--month K"),
             other => {
-                eprintln!("unknown argument {other}; see the comment at the top of examples/generate.rs");
+                eprintln!(
+                    "unknown argument {other}; see the comment at the top of examples/generate.rs"
+                );
                 std::process::exit(2);
             }
         }

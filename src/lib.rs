@@ -14,6 +14,7 @@ pub mod hash;
 pub mod history;
 pub mod ingest;
 pub mod model;
+pub mod profile;
 pub mod signing;
 pub mod store;
 

@@ -38,7 +38,10 @@ fn fresh_dir(dir: Option<PathBuf>) -> Result<PathBuf> {
         }
     };
     if dir.exists() && std::fs::read_dir(&dir)?.next().is_some() {
-        bail!("{} is not empty; give a new or empty folder for the demo", dir.display());
+        bail!(
+            "{} is not empty; give a new or empty folder for the demo",
+            dir.display()
+        );
     }
     std::fs::create_dir_all(&dir).with_context(|| format!("creating {}", dir.display()))?;
     Ok(dir.canonicalize()?)
@@ -93,98 +96,173 @@ pub fn run(a: DemoArgs) -> Result<i32> {
     )?;
 
     let pairs = |list: &[(&str, &str)]| -> Vec<(String, String)> {
-        list.iter().map(|(a, b)| (a.to_string(), b.to_string())).collect()
+        list.iter()
+            .map(|(a, b)| (a.to_string(), b.to_string()))
+            .collect()
     };
-    fix(&mut store, &now, Step {
-        action: FixAction::Recode {
-            column: "site".into(),
-            pairs: pairs(&[
-                ("mill creek", "Mill Creek"),
-                ("MILL CREEK", "Mill Creek"),
-                ("Mill Craek", "Mill Creek"),
-                (" Heron Pool", "Heron Pool"),
-                ("Stony Ford.", "Stony Ford"),
-            ]),
+    fix(
+        &mut store,
+        &now,
+        Step {
+            action: FixAction::Recode {
+                column: "site".into(),
+                pairs: pairs(&[
+                    ("mill creek", "Mill Creek"),
+                    ("MILL CREEK", "Mill Creek"),
+                    ("Mill Craek", "Mill Creek"),
+                    (" Heron Pool", "Heron Pool"),
+                    ("Stony Ford.", "Stony Ford"),
+                ]),
+            },
+            why: "spelling, case and spacing variants of the eight registered site names",
+            evidence: vec![],
+            consulted: Some("network coordinator"),
         },
-        why: "spelling, case and spacing variants of the eight registered site names",
-        evidence: vec![],
-        consulted: Some("network coordinator"),
-    })?;
-    fix(&mut store, &now, Step {
-        action: FixAction::Missing { column: "turbidity_ntu".into(), codes: vec!["-999".into()] },
-        why: "the field app writes -999 when no turbidity meter was taken out",
-        evidence: vec![],
-        consulted: None,
-    })?;
+    )?;
+    fix(
+        &mut store,
+        &now,
+        Step {
+            action: FixAction::Missing {
+                column: "turbidity_ntu".into(),
+                codes: vec!["-999".into()],
+            },
+            why: "the field app writes -999 when no turbidity meter was taken out",
+            evidence: vec![],
+            consulted: None,
+        },
+    )?;
     let first = history::commit_pending(&mut store, "Site names and missing-value codes", &ctx)?;
 
-    fix(&mut store, &now, Step {
-        action: FixAction::Set { row: RowId("S-00412".into()), column: "ph".into(), value: Some("7.1".into()) },
-        why: "lab sheet says 7.1; the entry had 71 (decimal point missed)",
-        evidence: vec![lab_sheet.clone()],
-        consulted: Some("lab lead"),
-    })?;
-    fix(&mut store, &now, Step {
-        action: FixAction::Set { row: RowId("S-01210".into()), column: "ph".into(), value: None },
-        why: "14.8 is outside the meter's range; no paper record survives to correct it",
-        evidence: vec![],
-        consulted: Some("lab lead"),
-    })?;
-    fix(&mut store, &now, Step {
-        action: FixAction::Set { row: RowId("S-01533".into()), column: "water_temp_c".into(), value: Some("18.5".into()) },
-        why: "185.0 is a shifted decimal: neighbouring visits read 17-19 °C",
-        evidence: vec![],
-        consulted: None,
-    })?;
-    fix(&mut store, &now, Step {
-        action: FixAction::Recode {
-            column: "weather".into(),
-            pairs: pairs(&[
-                ("rain?", "rain"),
-                ("light drizzle then sun", "rain"),
-                ("overcast-ish", "cloudy"),
-                ("windy, dry", "clear"),
-            ]),
+    fix(
+        &mut store,
+        &now,
+        Step {
+            action: FixAction::Set {
+                row: RowId("S-00412".into()),
+                column: "ph".into(),
+                value: Some("7.1".into()),
+            },
+            why: "lab sheet says 7.1; the entry had 71 (decimal point missed)",
+            evidence: vec![lab_sheet.clone()],
+            consulted: Some("lab lead"),
         },
-        why: "free-text write-ins in a coded column, mapped to the nearest code",
-        evidence: vec![],
-        consulted: Some("field coordinator"),
-    })?;
-    fix(&mut store, &now, Step {
-        action: FixAction::Exclude { row: RowId("S-00977".into()) },
-        why: "duplicate visit: the same bottle logged twice (identical to S-00976)",
-        evidence: vec![],
-        consulted: None,
-    })?;
-    fix(&mut store, &now, Step {
-        action: FixAction::Distrust { column: "calibrated".into() },
-        why: "always 'no': the app's default, never set by samplers",
-        evidence: vec![],
-        consulted: Some("app maintainer"),
-    })?;
-    let second = history::commit_pending(&mut store, "First cleaning pass", &ctx)?;
-    let report = history::verify::verify(
-        &store.read(),
-        &history::verify::Trust::Store,
-        &mut |_| {},
     )?;
+    fix(
+        &mut store,
+        &now,
+        Step {
+            action: FixAction::Set {
+                row: RowId("S-01210".into()),
+                column: "ph".into(),
+                value: None,
+            },
+            why: "14.8 is outside the meter's range; no paper record survives to correct it",
+            evidence: vec![],
+            consulted: Some("lab lead"),
+        },
+    )?;
+    fix(
+        &mut store,
+        &now,
+        Step {
+            action: FixAction::Set {
+                row: RowId("S-01533".into()),
+                column: "water_temp_c".into(),
+                value: Some("18.5".into()),
+            },
+            why: "185.0 is a shifted decimal: neighbouring visits read 17-19 °C",
+            evidence: vec![],
+            consulted: None,
+        },
+    )?;
+    fix(
+        &mut store,
+        &now,
+        Step {
+            action: FixAction::Recode {
+                column: "weather".into(),
+                pairs: pairs(&[
+                    ("rain?", "rain"),
+                    ("light drizzle then sun", "rain"),
+                    ("overcast-ish", "cloudy"),
+                    ("windy, dry", "clear"),
+                ]),
+            },
+            why: "free-text write-ins in a coded column, mapped to the nearest code",
+            evidence: vec![],
+            consulted: Some("field coordinator"),
+        },
+    )?;
+    fix(
+        &mut store,
+        &now,
+        Step {
+            action: FixAction::Exclude {
+                row: RowId("S-00977".into()),
+            },
+            why: "duplicate visit: the same bottle logged twice (identical to S-00976)",
+            evidence: vec![],
+            consulted: None,
+        },
+    )?;
+    fix(
+        &mut store,
+        &now,
+        Step {
+            action: FixAction::Distrust {
+                column: "calibrated".into(),
+            },
+            why: "always 'no': the app's default, never set by samplers",
+            evidence: vec![],
+            consulted: Some("app maintainer"),
+        },
+    )?;
+    let second = history::commit_pending(&mut store, "First cleaning pass", &ctx)?;
+    let report =
+        history::verify::verify(&store.read(), &history::verify::Trust::Store, &mut |_| {})?;
     if !report.is_clean() {
         bail!("the demo store does not verify: {:?}", report.problems);
     }
 
     let mut o = out::stdout();
-    writeln!(o, "{} in {}", paint(GOOD, "demo store built"), paint(BOLD, dir.display()))?;
-    writeln!(o, "  commit {} ingested field_samples.csv as table 'samples' (2,000 rows, key sample_id)", ingested.seq)?;
+    writeln!(
+        o,
+        "{} in {}",
+        paint(GOOD, "demo store built"),
+        paint(BOLD, dir.display())
+    )?;
+    writeln!(
+        o,
+        "  commit {} ingested field_samples.csv as table 'samples' (2,000 rows, key sample_id)",
+        ingested.seq
+    )?;
     for done in [&first, &second] {
         if let Change::Fixes(list) = &done.body.change {
             let cells: usize = list.iter().map(|r| r.edits.len()).sum();
-            writeln!(o, "  commit {} \"{}\": {} fixes, {} cells changed", done.seq, done.body.message, list.len(), cells)?;
+            writeln!(
+                o,
+                "  commit {} \"{}\": {} fixes, {} cells changed",
+                done.seq,
+                done.body.message,
+                list.len(),
+                cells
+            )?;
             for r in list {
-                writeln!(o, "    - {} {}", r.fix.action.describe(), paint(DIM, format!("({} cells)", r.edits.len())))?;
+                writeln!(
+                    o,
+                    "    - {} {}",
+                    r.fix.action.describe(),
+                    paint(DIM, format!("({} cells)", r.edits.len()))
+                )?;
             }
         }
     }
-    writeln!(o, "  verify: {} commits, {} table versions rebuilt, every signature checks out", report.n_commits, report.n_versions)?;
+    writeln!(
+        o,
+        "  verify: {} commits, {} table versions rebuilt, every signature checks out",
+        report.n_commits, report.n_versions
+    )?;
     explore(&mut o, &dir)?;
     Ok(0)
 }
@@ -206,8 +284,25 @@ fn explore(o: &mut dyn Write, dir: &Path) -> Result<()> {
         writeln!(o, "  {cmd}")?;
     }
     if let Some(exe) = exe {
-        writeln!(o, "{}", paint(DIM, format!("(emend is {}; put it on your PATH or call it by that path)", exe.display())))?;
+        writeln!(
+            o,
+            "{}",
+            paint(
+                DIM,
+                format!(
+                    "(emend is {}; put it on your PATH or call it by that path)",
+                    exe.display()
+                )
+            )
+        )?;
     }
-    writeln!(o, "{}", paint(DIM, "to record fixes yourself, make your own identity first: emend id new --name \"Your Name\""))?;
+    writeln!(
+        o,
+        "{}",
+        paint(
+            DIM,
+            "to record fixes yourself, make your own identity first: emend id new --name \"Your Name\""
+        )
+    )?;
     Ok(())
 }

@@ -211,7 +211,12 @@ pub fn distrust(a: DistrustArgs) -> Result<i32> {
 
 /// Print one fix for people.
 pub fn print_fix(o: &mut dyn Write, fix: &Fix, indent: &str) -> Result<()> {
-    writeln!(o, "{indent}{} {}", paint(BOLD, format!("{}:", fix.table)), fix.action.describe())?;
+    writeln!(
+        o,
+        "{indent}{} {}",
+        paint(BOLD, format!("{}:", fix.table)),
+        fix.action.describe()
+    )?;
     writeln!(o, "{indent}  why: {}", fix.why)?;
     if let Some(c) = &fix.consulted {
         writeln!(o, "{indent}  consulted: {c}")?;
@@ -250,7 +255,11 @@ pub fn fix_json(fix: &Fix, added_at: Option<&str>) -> serde_json::Value {
             obj.insert("column".into(), column.clone().into());
             obj.insert(
                 "pairs".into(),
-                pairs.iter().map(|(f, t)| serde_json::json!({"from": f, "to": t})).collect::<Vec<_>>().into(),
+                pairs
+                    .iter()
+                    .map(|(f, t)| serde_json::json!({"from": f, "to": t}))
+                    .collect::<Vec<_>>()
+                    .into(),
             );
         }
         FixAction::Missing { column, codes } => {

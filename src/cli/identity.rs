@@ -77,7 +77,9 @@ pub fn create(dir: &std::path::Path, name: &str, email: Option<&str>) -> Result<
     write_private(&key_path, hex.as_bytes())?;
     let info = IdentityFile {
         name: name.trim().to_string(),
-        email: email.map(|e| e.trim().to_string()).filter(|e| !e.is_empty()),
+        email: email
+            .map(|e| e.trim().to_string())
+            .filter(|e| !e.is_empty()),
         public_key: data_encoding::HEXLOWER.encode(&signer.public_key()),
     };
     std::fs::write(&info_path, serde_json::to_string_pretty(&info)? + "\n")
@@ -172,10 +174,27 @@ pub fn new(args: NewArgs) -> Result<i32> {
         "{} identity for {}{}",
         paint(GOOD, "made"),
         paint(BOLD, &id.name),
-        id.email.as_deref().map(|e| format!(" <{e}>")).unwrap_or_default()
+        id.email
+            .as_deref()
+            .map(|e| format!(" <{e}>"))
+            .unwrap_or_default()
     )?;
-    writeln!(o, "  key fingerprint {}", fingerprint(&id.signer.public_key()))?;
-    writeln!(o, "  {}", paint(DIM, format!("private key: {} (mode 0600; keep it safe, never share it)", dir.join("identity.key").display())))?;
+    writeln!(
+        o,
+        "  key fingerprint {}",
+        fingerprint(&id.signer.public_key())
+    )?;
+    writeln!(
+        o,
+        "  {}",
+        paint(
+            DIM,
+            format!(
+                "private key: {} (mode 0600; keep it safe, never share it)",
+                dir.join("identity.key").display()
+            )
+        )
+    )?;
     Ok(0)
 }
 
@@ -203,7 +222,10 @@ pub fn show(json: bool) -> Result<i32> {
         o,
         "{}{}",
         paint(BOLD, &id.name),
-        id.email.as_deref().map(|e| format!(" <{e}>")).unwrap_or_default()
+        id.email
+            .as_deref()
+            .map(|e| format!(" <{e}>"))
+            .unwrap_or_default()
     )?;
     writeln!(o, "  fingerprint  {}", fingerprint(&key))?;
     writeln!(o, "  public key   {}", data_encoding::HEXLOWER.encode(&key))?;

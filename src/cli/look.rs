@@ -63,9 +63,14 @@ pub struct ExportArgs {
 }
 
 fn parse_rows(text: &str) -> Result<(u64, u64)> {
-    let bad = || anyhow::anyhow!("--rows takes A-B or N with 1-based positions, e.g. 1-20 (got '{text}')");
+    let bad = || {
+        anyhow::anyhow!("--rows takes A-B or N with 1-based positions, e.g. 1-20 (got '{text}')")
+    };
     let (a, b) = match text.split_once('-') {
-        Some((a, b)) => (a.trim().parse::<u64>().map_err(|_| bad())?, b.trim().parse::<u64>().map_err(|_| bad())?),
+        Some((a, b)) => (
+            a.trim().parse::<u64>().map_err(|_| bad())?,
+            b.trim().parse::<u64>().map_err(|_| bad())?,
+        ),
         None => {
             let n = text.trim().parse::<u64>().map_err(|_| bad())?;
             (n, n)
@@ -91,7 +96,14 @@ pub fn tables(json: bool) -> Result<i32> {
     let head = reader.head()?.map(|(s, _)| s).unwrap_or(0);
     let mut list = Vec::new();
     for name in reader.table_names()? {
-        let v = history::version_at(&reader, &name, Rev { seq: head, raw: false })?;
+        let v = history::version_at(
+            &reader,
+            &name,
+            Rev {
+                seq: head,
+                raw: false,
+            },
+        )?;
         let n_extracts = reader.extracts_of(&name)?.len();
         list.push((name, v, n_extracts));
     }
@@ -122,20 +134,47 @@ pub fn tables(json: bool) -> Result<i32> {
         writeln!(o, "no tables yet: emend ingest FILE --table NAME")?;
         return Ok(0);
     }
-    let header: Vec<String> = ["table", "rows", "cols", "key", "extract", "edited cells", "excluded", "distrusted"]
-        .iter()
-        .map(|s| s.to_string())
-        .collect();
+    let header: Vec<String> = [
+        "table",
+        "rows",
+        "cols",
+        "key",
+        "extract",
+        "edited cells",
+        "excluded",
+        "distrusted",
+    ]
+    .iter()
+    .map(|s| s.to_string())
+    .collect();
     let rows: Vec<Vec<(String, Option<anstyle::Style>)>> = list
         .iter()
         .map(|(name, v, n)| {
-            let distrusted = (0..v.header().len()).filter(|&i| v.is_distrusted(i)).count();
+            let distrusted = (0..v.header().len())
+                .filter(|&i| v.is_distrusted(i))
+                .count();
             vec![
                 (name.clone(), Some(BOLD)),
                 (v.def.n_rows.to_string(), None),
                 (v.header().len().to_string(), None),
-                (if v.def.key.is_empty() { "(position)".into() } else { v.def.key.join(",") }, None),
-                (format!("{} ({}, commit {}, {} in all)", v.def.file_name, v.def.extract.short(), v.ingest_seq, n), None),
+                (
+                    if v.def.key.is_empty() {
+                        "(position)".into()
+                    } else {
+                        v.def.key.join(",")
+                    },
+                    None,
+                ),
+                (
+                    format!(
+                        "{} ({}, commit {}, {} in all)",
+                        v.def.file_name,
+                        v.def.extract.short(),
+                        v.ingest_seq,
+                        n
+                    ),
+                    None,
+                ),
                 (v.n_edited().to_string(), None),
                 (v.n_excluded().to_string(), None),
                 (distrusted.to_string(), None),
@@ -155,7 +194,10 @@ pub fn show(a: ShowArgs) -> Result<i32> {
     let cols: Vec<usize> = if a.cols.is_empty() {
         (0..v.header().len()).collect()
     } else {
-        a.cols.iter().map(|c| v.col_idx(c.trim())).collect::<emend::Result<_>>()?
+        a.cols
+            .iter()
+            .map(|c| v.col_idx(c.trim()))
+            .collect::<emend::Result<_>>()?
     };
     let mut picked = Vec::new();
     v.for_each_row(&reader, |row| {
@@ -164,7 +206,15 @@ pub fn show(a: ShowArgs) -> Result<i32> {
         }
         if row.pos >= from {
             let edited: Vec<bool> = cols.iter().map(|&c| v.is_edited(row.id, c)).collect();
-            picked.push((row.pos, row.id.clone(), row.excluded, cols.iter().map(|&c| row.cells[c].clone()).collect::<Vec<_>>(), edited));
+            picked.push((
+                row.pos,
+                row.id.clone(),
+                row.excluded,
+                cols.iter()
+                    .map(|&c| row.cells[c].clone())
+                    .collect::<Vec<_>>(),
+                edited,
+            ));
         }
         Ok(ControlFlow::Continue(()))
     })?;
@@ -203,9 +253,22 @@ pub fn show(a: ShowArgs) -> Result<i32> {
     let rows: Vec<Vec<(String, Option<anstyle::Style>)>> = picked
         .iter()
         .map(|(pos, _, excluded, cells, edited)| {
-            let mut r = vec![(if *excluded { format!("{pos} excluded") } else { pos.to_string() }, Some(DIM))];
+            let mut r = vec![(
+                if *excluded {
+                    format!("{pos} excluded")
+                } else {
+                    pos.to_string()
+                },
+                Some(DIM),
+            )];
             for (c, e) in cells.iter().zip(edited) {
-                let style = if *excluded || c.is_none() { Some(DIM) } else if *e { Some(CHANGED) } else { None };
+                let style = if *excluded || c.is_none() {
+                    Some(DIM)
+                } else if *e {
+                    Some(CHANGED)
+                } else {
+                    None
+                };
                 r.push((out::cell(c), style));
             }
             r
@@ -221,10 +284,21 @@ pub fn show(a: ShowArgs) -> Result<i32> {
 /// One line summarising what a commit records.
 pub fn summary(body: &CommitBody) -> String {
     match &body.change {
-        Change::Ingest(r) => format!("ingest {} into {}: {} rows × {} columns", r.file_name, r.table, r.n_rows, r.header.len()),
+        Change::Ingest(r) => format!(
+            "ingest {} into {}: {} rows × {} columns",
+            r.file_name,
+            r.table,
+            r.n_rows,
+            r.header.len()
+        ),
         Change::Fixes(list) => {
             let cells: usize = list.iter().map(|r| r.edits.len()).sum();
-            format!("{} fixes to {}, {} cells changed", list.len(), body.tables().join(", "), cells)
+            format!(
+                "{} fixes to {}, {} cells changed",
+                list.len(),
+                body.tables().join(", "),
+                cells
+            )
         }
     }
 }
@@ -282,8 +356,17 @@ pub fn log(a: LogArgs) -> Result<i32> {
         writeln!(o, "no commits yet")?;
     }
     for (c, b) in &entries {
-        let email = b.author.email.as_deref().map(|e| format!(" <{e}>")).unwrap_or_default();
-        let trust = if trusted.contains(&b.author.key) { "" } else { " (untrusted key)" };
+        let email = b
+            .author
+            .email
+            .as_deref()
+            .map(|e| format!(" <{e}>"))
+            .unwrap_or_default();
+        let trust = if trusted.contains(&b.author.key) {
+            ""
+        } else {
+            " (untrusted key)"
+        };
         writeln!(
             o,
             "{} {}  {}  {}{}  {}{}",
@@ -299,7 +382,13 @@ pub fn log(a: LogArgs) -> Result<i32> {
         writeln!(o, "    {}", paint(DIM, summary(b)))?;
         if let Change::Fixes(list) = &b.change {
             for r in list {
-                writeln!(o, "      - {} — {} ({} cells)", r.fix.action.describe(), r.fix.why, r.edits.len())?;
+                writeln!(
+                    o,
+                    "      - {} — {} ({} cells)",
+                    r.fix.action.describe(),
+                    r.fix.why,
+                    r.edits.len()
+                )?;
             }
         }
     }
@@ -318,18 +407,30 @@ impl AtomicFile {
         if target.is_dir() {
             bail!("{} is a folder; give a file name with -o", target.display());
         }
-        let dir = target.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(std::path::Path::new("."));
-        let name = target.file_name().context("-o needs a file name")?.to_string_lossy();
+        let dir = target
+            .parent()
+            .filter(|p| !p.as_os_str().is_empty())
+            .unwrap_or(std::path::Path::new("."));
+        let name = target
+            .file_name()
+            .context("-o needs a file name")?
+            .to_string_lossy();
         let tmp = dir.join(format!(".{name}.emend-{}.tmp", std::process::id()));
-        let file = std::fs::File::create(&tmp).with_context(|| format!("creating {}", tmp.display()))?;
-        Ok(AtomicFile { tmp, target: target.to_path_buf(), file: Some(std::io::BufWriter::with_capacity(1 << 20, file)) })
+        let file =
+            std::fs::File::create(&tmp).with_context(|| format!("creating {}", tmp.display()))?;
+        Ok(AtomicFile {
+            tmp,
+            target: target.to_path_buf(),
+            file: Some(std::io::BufWriter::with_capacity(1 << 20, file)),
+        })
     }
 
     fn finish(mut self) -> Result<()> {
         let f = self.file.take().expect("finish is called once");
         let file = f.into_inner().map_err(|e| e.into_error())?;
         file.sync_all()?;
-        std::fs::rename(&self.tmp, &self.target).with_context(|| format!("writing {}", self.target.display()))?;
+        std::fs::rename(&self.tmp, &self.target)
+            .with_context(|| format!("writing {}", self.target.display()))?;
         Ok(())
     }
 }
@@ -356,14 +457,30 @@ pub fn export(a: ExportArgs) -> Result<i32> {
     let reader = store.read();
     let rev = history::resolve(&reader, &a.at)?;
     let v = history::version_at(&reader, &a.table, rev)?;
-    let opts = ExportOptions { na: a.na.clone(), with_excluded: a.with_excluded, with_distrusted: a.with_distrusted };
+    let opts = ExportOptions {
+        na: a.na.clone(),
+        with_excluded: a.with_excluded,
+        with_distrusted: a.with_distrusted,
+    };
     let run = |w: &mut dyn Write| -> Result<String> {
         if a.raw {
             let n = export_raw(&reader, &v.def.extract, w)?;
-            Ok(format!("raw extract {} ({} bytes, {})", v.def.file_name, n, v.def.extract.short()))
+            Ok(format!(
+                "raw extract {} ({} bytes, {})",
+                v.def.file_name,
+                n,
+                v.def.extract.short()
+            ))
         } else {
             let done = export_version(&reader, &v, &opts, w)?;
-            Ok(format!("{} rows × {} columns of {} at {} ({} excluded rows left out)", done.n_rows, done.n_columns, v.table, rev_label(&rev), done.n_left_out))
+            Ok(format!(
+                "{} rows × {} columns of {} at {} ({} excluded rows left out)",
+                done.n_rows,
+                done.n_columns,
+                v.table,
+                rev_label(&rev),
+                done.n_left_out
+            ))
         }
     };
     match &a.output {

@@ -163,7 +163,9 @@ fn run(cli: Cli) -> Result<i32> {
 pub fn now() -> Result<String> {
     if let Ok(fixed) = std::env::var("EMEND_NOW") {
         let parsed = chrono::DateTime::parse_from_rfc3339(&fixed).map_err(|e| {
-            anyhow::anyhow!("EMEND_NOW='{fixed}' is not an RFC 3339 time ({e}); e.g. 2026-10-01T09:00:00Z")
+            anyhow::anyhow!(
+                "EMEND_NOW='{fixed}' is not an RFC 3339 time ({e}); e.g. 2026-10-01T09:00:00Z"
+            )
         })?;
         return Ok(parsed
             .with_timezone(&chrono::Utc)

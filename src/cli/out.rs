@@ -54,7 +54,13 @@ pub fn table(header: &[String], rows: &[Vec<(String, Option<Style>)>], max_width
     let cut = |s: &str| -> String {
         let clean: String = s
             .chars()
-            .map(|c| if c == '\n' || c == '\r' || c == '\t' { ' ' } else { c })
+            .map(|c| {
+                if c == '\n' || c == '\r' || c == '\t' {
+                    ' '
+                } else {
+                    c
+                }
+            })
             .collect();
         if clean.chars().count() > max_width {
             let mut t: String = clean.chars().take(max_width.saturating_sub(1)).collect();
@@ -88,6 +94,9 @@ pub fn table(header: &[String], rows: &[Vec<(String, Option<Style>)>], max_width
             if !last {
                 out.push_str(&" ".repeat(pad + 2));
             }
+        }
+        while out.ends_with(' ') {
+            out.pop();
         }
         out.push('\n');
     };

@@ -45,7 +45,12 @@ pub fn init() -> Result<i32> {
     let now = super::now()?;
     let mut store = emend::store::Store::init(&cwd, &now)?;
     let mut o = out::stdout();
-    writeln!(o, "{} empty store in {}", paint(GOOD, "made"), store.path().display())?;
+    writeln!(
+        o,
+        "{} empty store in {}",
+        paint(GOOD, "made"),
+        store.path().display()
+    )?;
     match identity::try_load(&identity::home()?)? {
         Some(id) => {
             let key = id.signer.public_key();
@@ -71,8 +76,12 @@ pub fn init() -> Result<i32> {
 fn parse_delimiter(text: &str) -> Result<u8> {
     match text {
         "tab" | "\\t" | "\t" => Ok(b'\t'),
-        t if t.len() == 1 && t.is_ascii() && !matches!(t, "\"" | "\n" | "\r") => Ok(t.as_bytes()[0]),
-        _ => bail!("--delimiter must be one ASCII character other than a quote or line end, or 'tab' (got '{text}')"),
+        t if t.len() == 1 && t.is_ascii() && !matches!(t, "\"" | "\n" | "\r") => {
+            Ok(t.as_bytes()[0])
+        }
+        _ => bail!(
+            "--delimiter must be one ASCII character other than a quote or line end, or 'tab' (got '{text}')"
+        ),
     }
 }
 
@@ -87,7 +96,12 @@ pub fn ingest(args: IngestArgs) -> Result<i32> {
     };
     let opts = IngestOptions {
         table: args.table.clone(),
-        key: args.key.iter().map(|k| k.trim().to_string()).filter(|k| !k.is_empty()).collect(),
+        key: args
+            .key
+            .iter()
+            .map(|k| k.trim().to_string())
+            .filter(|k| !k.is_empty())
+            .collect(),
         delimiter: args.delimiter.as_deref().map(parse_delimiter).transpose()?,
         encoding,
     };
@@ -118,7 +132,11 @@ pub fn ingest(args: IngestArgs) -> Result<i32> {
         paint(BOLD, &r.table),
         r.n_rows,
         r.header.len(),
-        if r.key.is_empty() { "none (rows named by position)".to_string() } else { r.key.join(", ") }
+        if r.key.is_empty() {
+            "none (rows named by position)".to_string()
+        } else {
+            r.key.join(", ")
+        }
     )?;
     writeln!(
         o,
@@ -129,7 +147,11 @@ pub fn ingest(args: IngestArgs) -> Result<i32> {
         secs
     )?;
     if outcome.blank_lines > 0 {
-        writeln!(o, "  skipped {} blank lines (kept in the raw bytes)", outcome.blank_lines)?;
+        writeln!(
+            o,
+            "  skipped {} blank lines (kept in the raw bytes)",
+            outcome.blank_lines
+        )?;
     }
     Ok(0)
 }
@@ -159,7 +181,11 @@ pub fn status(json: bool) -> Result<i32> {
         writeln!(o, "no pending fixes")?;
         return Ok(0);
     }
-    writeln!(o, "{} pending fixes (commit with 'emend commit -m \"...\"', drop with 'emend discard'):", pending.len())?;
+    writeln!(
+        o,
+        "{} pending fixes (commit with 'emend commit -m \"...\"', drop with 'emend discard'):",
+        pending.len()
+    )?;
     for p in &pending {
         super::fixes::print_fix(&mut o, &p.fix, "  ")?;
     }
@@ -195,7 +221,9 @@ pub fn commit(args: CommitArgs) -> Result<i32> {
     for r in records {
         let n = r.edits.len();
         let count = match r.fix.action {
-            emend::model::FixAction::Exclude { .. } | emend::model::FixAction::Distrust { .. } => String::new(),
+            emend::model::FixAction::Exclude { .. } | emend::model::FixAction::Distrust { .. } => {
+                String::new()
+            }
             _ if n == 0 => paint(BAD, " (changed no cell)"),
             _ => format!(" ({n} cells)"),
         };

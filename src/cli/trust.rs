@@ -19,7 +19,8 @@ pub struct VerifyArgs {
 }
 
 fn read_keys(path: &PathBuf) -> Result<Vec<[u8; 32]>> {
-    let text = std::fs::read_to_string(path).with_context(|| format!("reading {}", path.display()))?;
+    let text =
+        std::fs::read_to_string(path).with_context(|| format!("reading {}", path.display()))?;
     let mut keys = Vec::new();
     for (i, line) in text.lines().enumerate() {
         let line = line.split('#').next().unwrap_or("").trim();
@@ -31,7 +32,13 @@ fn read_keys(path: &PathBuf) -> Result<Vec<[u8; 32]>> {
             .decode(word.as_bytes())
             .ok()
             .and_then(|v| v.try_into().ok())
-            .with_context(|| format!("{}:{}: not a public key (64 hex digits)", path.display(), i + 1))?;
+            .with_context(|| {
+                format!(
+                    "{}:{}: not a public key (64 hex digits)",
+                    path.display(),
+                    i + 1
+                )
+            })?;
         keys.push(key);
     }
     if keys.is_empty() {
@@ -73,16 +80,33 @@ pub fn verify(a: VerifyArgs) -> Result<i32> {
         let mut o = out::stdout();
         let counts = format!(
             "{} commits, {} chunks, {} stored files, {} table versions, {} index rows",
-            report.n_commits, report.n_chunks, report.n_files, report.n_versions, report.n_index_rows
+            report.n_commits,
+            report.n_chunks,
+            report.n_files,
+            report.n_versions,
+            report.n_index_rows
         );
         if report.is_clean() {
-            writeln!(o, "{} {counts}: every hash, signature, version and index row checks out", paint(GOOD, "intact:"))?;
+            writeln!(
+                o,
+                "{} {counts}: every hash, signature, version and index row checks out",
+                paint(GOOD, "intact:")
+            )?;
         } else {
-            writeln!(o, "{} {} problems found ({counts} checked)", paint(BAD, "NOT INTACT:"), report.problems.len())?;
+            writeln!(
+                o,
+                "{} {} problems found ({counts} checked)",
+                paint(BAD, "NOT INTACT:"),
+                report.problems.len()
+            )?;
             for p in &report.problems {
                 writeln!(o, "  {}: {}", paint(BOLD, &p.object), p.what)?;
             }
         }
     }
-    Ok(if report.is_clean() { super::EXIT_OK } else { super::EXIT_FOUND })
+    Ok(if report.is_clean() {
+        super::EXIT_OK
+    } else {
+        super::EXIT_FOUND
+    })
 }

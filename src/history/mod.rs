@@ -91,12 +91,24 @@ pub fn resolve(reader: &Reader<'_>, text: &str) -> Result<Rev> {
     let head = reader.head()?.map(|(s, _)| s).unwrap_or(0);
     let text = text.trim();
     match text {
-        "latest" => return Ok(Rev { seq: head, raw: false }),
-        "raw" => return Ok(Rev { seq: head, raw: true }),
+        "latest" => {
+            return Ok(Rev {
+                seq: head,
+                raw: false,
+            });
+        }
+        "raw" => {
+            return Ok(Rev {
+                seq: head,
+                raw: true,
+            });
+        }
         _ => {}
     }
     if !text.is_empty() && text.len() < 8 && text.bytes().all(|b| b.is_ascii_digit()) {
-        let seq: u64 = text.parse().map_err(|_| Error::UnknownRevision(text.into()))?;
+        let seq: u64 = text
+            .parse()
+            .map_err(|_| Error::UnknownRevision(text.into()))?;
         if seq == 0 || seq > head {
             return Err(Error::UnknownRevision(text.into()));
         }
@@ -107,10 +119,16 @@ pub fn resolve(reader: &Reader<'_>, text: &str) -> Result<Rev> {
         let found = reader.commits_with_prefix(&prefix)?;
         return match found.as_slice() {
             [] => Err(Error::UnknownRevision(text.into())),
-            [(seq, _)] => Ok(Rev { seq: *seq, raw: false }),
+            [(seq, _)] => Ok(Rev {
+                seq: *seq,
+                raw: false,
+            }),
             many => Err(Error::AmbiguousRevision {
                 prefix: text.into(),
-                candidates: many.iter().map(|(s, id)| format!("{s} ({})", id.short())).collect(),
+                candidates: many
+                    .iter()
+                    .map(|(s, id)| format!("{s} ({})", id.short()))
+                    .collect(),
             }),
         };
     }
@@ -126,7 +144,10 @@ pub fn version_at(reader: &Reader<'_>, table: &str, rev: Rev) -> Result<Version>
 pub fn check_table_name(name: &str) -> Result<()> {
     let ok = !name.is_empty()
         && name.len() <= 64
-        && name.chars().next().is_some_and(|c| c.is_ascii_alphanumeric())
+        && name
+            .chars()
+            .next()
+            .is_some_and(|c| c.is_ascii_alphanumeric())
         && name
             .chars()
             .all(|c| c.is_ascii_alphanumeric() || matches!(c, '_' | '-' | '.'));
@@ -285,12 +306,13 @@ pub fn record_fix(store: &mut Store, req: FixRequest, now: &str) -> Result<Recor
     }
     match &req.action {
         FixAction::Set { row, column, value } => {
-            let (_, cells, _) = version
-                .find_row(&reader, row)?
-                .ok_or_else(|| Error::UnknownRow {
-                    table: req.table.clone(),
-                    row: row.to_string(),
-                })?;
+            let (_, cells, _) =
+                version
+                    .find_row(&reader, row)?
+                    .ok_or_else(|| Error::UnknownRow {
+                        table: req.table.clone(),
+                        row: row.to_string(),
+                    })?;
             if &cells[version.col_idx(column)?] == value {
                 note = Some(format!("row {row} {column} already holds this value"));
             }
@@ -305,10 +327,14 @@ pub fn record_fix(store: &mut Store, req: FixRequest, now: &str) -> Result<Recor
         }
         FixAction::Recode { pairs, .. } => {
             if pairs.is_empty() {
-                return Err(Error::Invalid("recode needs at least one from/to pair".into()));
+                return Err(Error::Invalid(
+                    "recode needs at least one from/to pair".into(),
+                ));
             }
             if let Some((a, _)) = pairs.iter().find(|(a, b)| a == b) {
-                return Err(Error::Invalid(format!("recode of '{a}' to itself changes nothing")));
+                return Err(Error::Invalid(format!(
+                    "recode of '{a}' to itself changes nothing"
+                )));
             }
         }
         FixAction::Missing { codes, .. } => {
@@ -439,7 +465,11 @@ fn resolve_fixes(
                 FixAction::Set { row: r, value, .. } => {
                     if r == row.id {
                         p.found = true;
-                        change(p.col.expect("set names a column"), value.clone(), &mut cells);
+                        change(
+                            p.col.expect("set names a column"),
+                            value.clone(),
+                            &mut cells,
+                        );
                     }
                 }
                 FixAction::Recode { pairs, .. } => {
@@ -498,7 +528,9 @@ pub fn commit_pending(
     ctx: &CommitContext<'_>,
 ) -> Result<CommitOutcome> {
     if message.trim().is_empty() {
-        return Err(Error::Invalid("a commit needs a message: -m \"...\"".into()));
+        return Err(Error::Invalid(
+            "a commit needs a message: -m \"...\"".into(),
+        ));
     }
     let tx = store.transaction()?;
     let reader = tx.read();
@@ -541,7 +573,13 @@ pub fn commit_pending(
 }
 
 /// Trust a signer's key in this store.
-pub fn trust(store: &mut Store, key: &[u8; 32], name: &str, email: Option<&str>, now: &str) -> Result<bool> {
+pub fn trust(
+    store: &mut Store,
+    key: &[u8; 32],
+    name: &str,
+    email: Option<&str>,
+    now: &str,
+) -> Result<bool> {
     let tx = store.transaction()?;
     let added = tx.trust_signer(key, name, email, now)?;
     tx.commit()?;

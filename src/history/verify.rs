@@ -64,7 +64,11 @@ pub enum Trust {
 }
 
 /// Check everything. `progress` is called with a short stage name as work advances.
-pub fn verify(reader: &Reader<'_>, trust: &Trust, progress: &mut dyn FnMut(&str)) -> Result<VerifyReport> {
+pub fn verify(
+    reader: &Reader<'_>,
+    trust: &Trust,
+    progress: &mut dyn FnMut(&str),
+) -> Result<VerifyReport> {
     let mut report = VerifyReport::default();
     let trusted: HashSet<[u8; 32]> = match trust {
         Trust::Store => reader.signers()?.into_iter().map(|s| s.key).collect(),
@@ -81,7 +85,11 @@ pub fn verify(reader: &Reader<'_>, trust: &Trust, progress: &mut dyn FnMut(&str)
         if stored.seq != expected_seq {
             report.problem(
                 &name,
-                format!("sequence jumps from {} to {} (a commit is missing)", expected_seq - 1, stored.seq),
+                format!(
+                    "sequence jumps from {} to {} (a commit is missing)",
+                    expected_seq - 1,
+                    stored.seq
+                ),
             );
         }
         expected_seq = stored.seq + 1;
@@ -104,14 +112,22 @@ pub fn verify(reader: &Reader<'_>, trust: &Trust, progress: &mut dyn FnMut(&str)
             }
         };
         if body.seq != stored.seq {
-            report.problem(&name, format!("body says it is commit {} (commits were reordered)", body.seq));
+            report.problem(
+                &name,
+                format!(
+                    "body says it is commit {} (commits were reordered)",
+                    body.seq
+                ),
+            );
         }
         if body.parent != prev {
             report.problem(
                 &name,
                 format!(
                     "parent is {} but the previous commit is {} (the chain is broken)",
-                    body.parent.map(|p| p.short()).unwrap_or_else(|| "none".into()),
+                    body.parent
+                        .map(|p| p.short())
+                        .unwrap_or_else(|| "none".into()),
                     prev.map(|p| p.short()).unwrap_or_else(|| "none".into())
                 ),
             );
@@ -139,7 +155,10 @@ pub fn verify(reader: &Reader<'_>, trust: &Trust, progress: &mut dyn FnMut(&str)
             for r in records {
                 for ev in &r.fix.evidence {
                     if !reader.has_blob(&ev.blob)? {
-                        report.problem(&name, format!("evidence '{}' ({}) is not stored", ev.name, ev.blob.short()));
+                        report.problem(
+                            &name,
+                            format!("evidence '{}' ({}) is not stored", ev.name, ev.blob.short()),
+                        );
                     }
                 }
             }
@@ -156,7 +175,10 @@ pub fn verify(reader: &Reader<'_>, trust: &Trust, progress: &mut dyn FnMut(&str)
         match reader.read_chunk(&id, &mut buf) {
             Ok(()) => {
                 if ChunkId(Digest::of(&buf)) != id {
-                    report.problem(format!("chunk {}", id.short()), "content does not match its hash");
+                    report.problem(
+                        format!("chunk {}", id.short()),
+                        "content does not match its hash",
+                    );
                 }
             }
             Err(e) => report.problem(format!("chunk {}", id.short()), e.to_string()),
@@ -172,7 +194,9 @@ pub fn verify(reader: &Reader<'_>, trust: &Trust, progress: &mut dyn FnMut(&str)
         let result = reader.open_blob(&id).and_then(|mut r| {
             let mut block = vec![0u8; 1 << 16];
             loop {
-                let n = r.read(&mut block).map_err(|e| crate::Error::Corrupt(e.to_string()))?;
+                let n = r
+                    .read(&mut block)
+                    .map_err(|e| crate::Error::Corrupt(e.to_string()))?;
                 if n == 0 {
                     return Ok(());
                 }
@@ -187,7 +211,10 @@ pub fn verify(reader: &Reader<'_>, trust: &Trust, progress: &mut dyn FnMut(&str)
                     report.problem(&name, "bytes do not match its hash");
                 }
                 if total != n_bytes {
-                    report.problem(&name, format!("holds {total} bytes, its record says {n_bytes}"));
+                    report.problem(
+                        &name,
+                        format!("holds {total} bytes, its record says {n_bytes}"),
+                    );
                 }
             }
         }
@@ -200,19 +227,42 @@ pub fn verify(reader: &Reader<'_>, trust: &Trust, progress: &mut dyn FnMut(&str)
     }
     expected.sort();
     let actual = reader.index_rows()?;
-    report.n_index_rows = (actual.extracts.len() + actual.cells.len() + actual.marks.len() + actual.versions.len()) as u64;
-    compare_rows(&mut report, "extract index", &expected.extracts, &actual.extracts, |r| {
-        format!("table {} commit {}", r.0, r.1)
-    });
-    compare_rows(&mut report, "cell_edit index", &expected.cells, &actual.cells, |r| {
-        format!("table {} row {} column {} commit {}", r.table, r.row, r.column, r.seq)
-    });
-    compare_rows(&mut report, "mark index", &expected.marks, &actual.marks, |r| {
-        format!("table {} {} {} commit {}", r.table, r.kind, r.target, r.seq)
-    });
-    compare_rows(&mut report, "version index", &expected.versions, &actual.versions, |r| {
-        format!("table {} commit {}", r.0, r.1)
-    });
+    report.n_index_rows =
+        (actual.extracts.len() + actual.cells.len() + actual.marks.len() + actual.versions.len())
+            as u64;
+    compare_rows(
+        &mut report,
+        "extract index",
+        &expected.extracts,
+        &actual.extracts,
+        |r| format!("table {} commit {}", r.0, r.1),
+    );
+    compare_rows(
+        &mut report,
+        "cell_edit index",
+        &expected.cells,
+        &actual.cells,
+        |r| {
+            format!(
+                "table {} row {} column {} commit {}",
+                r.table, r.row, r.column, r.seq
+            )
+        },
+    );
+    compare_rows(
+        &mut report,
+        "mark index",
+        &expected.marks,
+        &actual.marks,
+        |r| format!("table {} {} {} commit {}", r.table, r.kind, r.target, r.seq),
+    );
+    compare_rows(
+        &mut report,
+        "version index",
+        &expected.versions,
+        &actual.versions,
+        |r| format!("table {} commit {}", r.0, r.1),
+    );
 
     progress("versions");
     for b in &bodies {
@@ -227,10 +277,19 @@ pub fn verify(reader: &Reader<'_>, trust: &Trust, progress: &mut dyn FnMut(&str)
                             format!("table '{}' rebuilt from its extract and fixes does not match the recorded version hash", tv.table),
                         );
                     } else if n_rows != tv.n_rows {
-                        report.problem(&name, format!("table '{}' has {n_rows} rows, the commit says {}", tv.table, tv.n_rows));
+                        report.problem(
+                            &name,
+                            format!(
+                                "table '{}' has {n_rows} rows, the commit says {}",
+                                tv.table, tv.n_rows
+                            ),
+                        );
                     }
                 }
-                Err(e) => report.problem(&name, format!("table '{}' cannot be rebuilt: {e}", tv.table)),
+                Err(e) => report.problem(
+                    &name,
+                    format!("table '{}' cannot be rebuilt: {e}", tv.table),
+                ),
             }
         }
     }
@@ -263,7 +322,13 @@ fn compare_rows<T: Ord + Clone>(
             std::cmp::Ordering::Less => {
                 missing += 1;
                 if shown < 10 {
-                    report.problem(what, format!("{} is in the commit bodies but not in the index, or differs", describe(&expected[i])));
+                    report.problem(
+                        what,
+                        format!(
+                            "{} is in the commit bodies but not in the index, or differs",
+                            describe(&expected[i])
+                        ),
+                    );
                     shown += 1;
                 }
                 i += 1;
@@ -271,7 +336,13 @@ fn compare_rows<T: Ord + Clone>(
             std::cmp::Ordering::Greater => {
                 extra += 1;
                 if shown < 10 {
-                    report.problem(what, format!("{} is in the index but no commit body says so", describe(&actual[j])));
+                    report.problem(
+                        what,
+                        format!(
+                            "{} is in the index but no commit body says so",
+                            describe(&actual[j])
+                        ),
+                    );
                     shown += 1;
                 }
                 j += 1;
@@ -279,6 +350,9 @@ fn compare_rows<T: Ord + Clone>(
         }
     }
     if missing + extra > shown {
-        report.problem(what, format!("{} more rows differ", missing + extra - shown));
+        report.problem(
+            what,
+            format!("{} more rows differ", missing + extra - shown),
+        );
     }
 }

@@ -260,7 +260,10 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
 
     let result = (|| -> Result<(IngestRecord, VersionHash, u64)> {
         let mut rec = RawRecord::default();
-        if !reader.read_record(&mut rec).map_err(|e| csv_error(path, e))? {
+        if !reader
+            .read_record(&mut rec)
+            .map_err(|e| csv_error(path, e))?
+        {
             return Err(Error::BadFile {
                 path: path.to_path_buf(),
                 problem: "the file is empty".into(),
@@ -269,11 +272,15 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
         let mut text = String::new();
         let mut header: Vec<String> = Vec::with_capacity(rec.len());
         for (i, field) in rec.iter().enumerate() {
-            decode_into(field, encoding, &mut text)
-                .map_err(|at| utf8_error(path, &rec, i, at))?;
+            decode_into(field, encoding, &mut text).map_err(|at| utf8_error(path, &rec, i, at))?;
             let name = text.trim().to_string();
             if name.is_empty() {
-                return Err(bad(path, rec.line, i as u64 + 1, "empty column name in the header"));
+                return Err(bad(
+                    path,
+                    rec.line,
+                    i as u64 + 1,
+                    "empty column name in the header",
+                ));
             }
             if let Some(j) = header.iter().position(|h| *h == name) {
                 return Err(bad(
@@ -290,13 +297,16 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
         let quote_all = header_quoted(strip_bom(&head), delimiter, header.len());
         let mut key_idx = Vec::new();
         for k in &opts.key {
-            let idx = header.iter().position(|h| h == k).ok_or_else(|| Error::BadFile {
-                path: path.to_path_buf(),
-                problem: format!(
-                    "key column '{k}' is not in the header (columns: {})",
-                    header.join(", ")
-                ),
-            })?;
+            let idx = header
+                .iter()
+                .position(|h| h == k)
+                .ok_or_else(|| Error::BadFile {
+                    path: path.to_path_buf(),
+                    problem: format!(
+                        "key column '{k}' is not in the header (columns: {})",
+                        header.join(", ")
+                    ),
+                })?;
             if key_idx.contains(&idx) {
                 return Err(Error::Invalid(format!("key column '{k}' is named twice")));
             }
@@ -304,14 +314,18 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
         }
 
         let mut hasher = VersionHashBuilder::new(&header);
-        let build = std::hash::BuildHasherDefault::<std::collections::hash_map::DefaultHasher>::default();
+        let build =
+            std::hash::BuildHasherDefault::<std::collections::hash_map::DefaultHasher>::default();
         let mut key_hashes: Vec<u64> = Vec::new();
         let mut n_rows = 0u64;
         let mut blank_lines = 0u64;
         let mut cells: Vec<String> = vec![String::new(); header.len()];
         let mut row_id = String::new();
         loop {
-            if !reader.read_record(&mut rec).map_err(|e| csv_error(path, e))? {
+            if !reader
+                .read_record(&mut rec)
+                .map_err(|e| csv_error(path, e))?
+            {
                 break;
             }
             drain(false, &mut chunks, &mut new_bytes)?;
@@ -375,7 +389,9 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
                 .map(|w| w[0])
                 .collect();
             if !dup.is_empty() {
-                if let Some(msg) = list_duplicates(path, delimiter, encoding, &key_idx, &header, &dup)? {
+                if let Some(msg) =
+                    list_duplicates(path, delimiter, encoding, &key_idx, &header, &dup)?
+                {
                     return Err(Error::BadFile {
                         path: path.to_path_buf(),
                         problem: msg,
@@ -410,7 +426,11 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
 
     // Whatever happened, stop the worker cleanly before returning.
     let mut tee = reader_into_tee(reader);
-    let flushed = if result.is_ok() { tee.flush_piece() } else { Ok(()) };
+    let flushed = if result.is_ok() {
+        tee.flush_piece()
+    } else {
+        Ok(())
+    };
     tee.to_worker = None;
     let drained = if result.is_ok() {
         drain(true, &mut chunks, &mut new_bytes)
@@ -494,14 +514,18 @@ fn list_duplicates(
     header: &[String],
     dup_hashes: &[u64],
 ) -> Result<Option<String>> {
-    let build = std::hash::BuildHasherDefault::<std::collections::hash_map::DefaultHasher>::default();
+    let build =
+        std::hash::BuildHasherDefault::<std::collections::hash_map::DefaultHasher>::default();
     let wanted: std::collections::HashSet<u64> = dup_hashes.iter().copied().collect();
     let mut seen: std::collections::HashMap<String, Vec<u64>> = Default::default();
     let mut reader = CsvReader::new(open_input(path)?, delimiter);
     let mut rec = RawRecord::default();
     let mut first = true;
     let mut text = String::new();
-    while reader.read_record(&mut rec).map_err(|e| csv_error(path, e))? {
+    while reader
+        .read_record(&mut rec)
+        .map_err(|e| csv_error(path, e))?
+    {
         if first || rec.is_blank_line() {
             first = false;
             continue;

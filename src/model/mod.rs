@@ -417,7 +417,10 @@ mod tests {
         assert_eq!(bytes, body().encode());
         let mut other = body();
         other.message.push('!');
-        assert_ne!(CommitBody::id_of(&other.encode()), CommitBody::id_of(&bytes));
+        assert_ne!(
+            CommitBody::id_of(&other.encode()),
+            CommitBody::id_of(&bytes)
+        );
     }
 
     #[test]
@@ -430,8 +433,14 @@ mod tests {
 
     #[test]
     fn encodings_parse() {
-        assert_eq!(TextEncoding::parse("CP1252"), Some(TextEncoding::Windows1252));
-        assert_eq!(TextEncoding::parse("ISO-8859-1"), Some(TextEncoding::Latin1));
+        assert_eq!(
+            TextEncoding::parse("CP1252"),
+            Some(TextEncoding::Windows1252)
+        );
+        assert_eq!(
+            TextEncoding::parse("ISO-8859-1"),
+            Some(TextEncoding::Latin1)
+        );
         assert_eq!(TextEncoding::parse("ebcdic"), None);
     }
 }

@@ -93,11 +93,18 @@ mod tests {
             let signature = hex(case["signature"].as_str().unwrap());
             let signer = Signer::from_seed(&seed);
             assert_eq!(signer.public_key(), public, "{name}: public key");
-            assert_eq!(signer.sign(&message).to_vec(), signature, "{name}: signature");
+            assert_eq!(
+                signer.sign(&message).to_vec(),
+                signature,
+                "{name}: signature"
+            );
             assert!(verify(&public, &message, &signature), "{name}: verifies");
             let mut bad = signature.clone();
             bad[0] ^= 1;
-            assert!(!verify(&public, &message, &bad), "{name}: flipped bit fails");
+            assert!(
+                !verify(&public, &message, &bad),
+                "{name}: flipped bit fails"
+            );
         }
     }
 

@@ -661,11 +661,11 @@ impl<'a> Reader<'a> {
 
     /// Total bytes of compressed chunk data.
     pub fn stored_bytes(&self) -> Result<u64> {
-        Ok(self
-            .conn
-            .query_row("SELECT COALESCE(SUM(LENGTH(data)), 0) FROM chunk", [], |r| {
-                r.get::<_, i64>(0)
-            })? as u64)
+        Ok(self.conn.query_row(
+            "SELECT COALESCE(SUM(LENGTH(data)), 0) FROM chunk",
+            [],
+            |r| r.get::<_, i64>(0),
+        )? as u64)
     }
 }
 
@@ -849,7 +849,10 @@ mod tests {
             .unwrap();
         drop(store);
         let err = Store::discover(dir.path()).err().expect("refused");
-        assert!(matches!(err, Error::SchemaTooNew { found: 99, .. }), "{err}");
+        assert!(
+            matches!(err, Error::SchemaTooNew { found: 99, .. }),
+            "{err}"
+        );
     }
 
     #[test]
@@ -869,7 +872,10 @@ mod tests {
             .execute("UPDATE commit_log SET body = x'01'", [])
             .unwrap_err();
         assert!(err.to_string().contains("immutable"), "{err}");
-        let err = store.conn.execute("DELETE FROM commit_log", []).unwrap_err();
+        let err = store
+            .conn
+            .execute("DELETE FROM commit_log", [])
+            .unwrap_err();
         assert!(err.to_string().contains("immutable"), "{err}");
     }
 }

@@ -1,0 +1,486 @@
+//! Near-duplicate levels: one value spelled several ways.
+//!
+//! Levels are first folded to a key (case, diacritics of Latin-1 and Latin Extended-A,
+//! punctuation, doubled or surrounding whitespace), then keys close in edit distance are
+//! joined. Distances count Unicode code points, as the reference values do. The caller keeps
+//! the work bounded by passing only the most frequent levels; this module does no I/O and
+//! never decides a fix on its own, it only suggests the most frequent spelling.
+
+use serde::{Deserialize, Serialize};
+
+/// Base letters of U+00C0..=U+00FF. Digits stand for two-letter folds (see [`expand`]);
+/// a space marks × and ÷, which fold to a separator.
+const LATIN1: &[u8; 64] = b"aaaaaa1ceeeeiiiidnooooo ouuuuy23aaaaaa1ceeeeiiiidnooooo ouuuuy2y";
+
+/// Base letters of U+0100..=U+017F (Latin Extended-A); digits as in [`LATIN1`].
+const LATIN_EXT_A: &[u8; 128] = b"aaaaaaccccccccddddeeeeeeeeeegggggggghhhhiiiiiiiiii55jjkkkllllllllllnnnnnnnnnoooooo44rrrrrrssssssssttttttuuuuuuuuuuuuwwyyyzzzzzzs";
+
+fn expand(code: u8) -> &'static str {
+    match code {
+        b'1' => "ae",
+        b'2' => "th",
+        b'3' => "ss",
+        b'4' => "oe",
+        b'5' => "ij",
+        _ => unreachable!("fold tables hold letters, a space or the codes 1-5"),
+    }
+}
+
+/// The base form of one character for folding: `Some(str)` for a letter with a diacritic
+/// from Latin-1 or Latin Extended-A (or a ligature), `None` when no fold applies.
+fn fold_char(c: char) -> Option<&'static str> {
+    let code = u32::from(c);
+    let byte = match code {
+        0xC0..=0xFF => LATIN1[(code - 0xC0) as usize],
+        0x100..=0x17F => LATIN_EXT_A[(code - 0x100) as usize],
+        _ => return None,
+    };
+    Some(match byte {
+        b'1'..=b'5' => expand(byte),
+        b' ' => " ",
+        // A one-letter fold: index a static alphabet to get a `&'static str`.
+        b'a'..=b'z' => {
+            const ALPHABET: &str = "abcdefghijklmnopqrstuvwxyz";
+            let i = usize::from(byte - b'a');
+            &ALPHABET[i..=i]
+        }
+        _ => unreachable!("fold tables hold letters, a space or the codes 1-5"),
+    })
+}
+
+/// Folds a level to the key under which spellings of one value meet: lowercase, diacritics
+/// removed (Latin-1 and Latin Extended-A), apostrophes dropped, other punctuation and all
+/// whitespace runs turned into single spaces, trimmed.
+///
+/// ```
+/// use emend::profile::levels::fold_key;
+/// assert_eq!(fold_key("  Mill-Creek  "), "mill creek");
+/// assert_eq!(fold_key("St. Mary's"), "st marys");
+/// assert_eq!(fold_key("Ñandú"), "nandu");
+/// ```
+pub fn fold_key(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    let mut pending_space = false;
+    let push = |out: &mut String, piece: &str, pending: &mut bool| {
+        if *pending && !out.is_empty() {
+            out.push(' ');
+        }
+        *pending = false;
+        out.push_str(piece);
+    };
+    for c in text.chars() {
+        if matches!(c, '\'' | '\u{2019}' | '`' | '\u{00B4}') {
+            continue;
+        }
+        if c.is_whitespace() || (c.is_ascii_punctuation()) {
+            pending_space = true;
+            continue;
+        }
+        if let Some(folded) = fold_char(c) {
+            if folded == " " {
+                pending_space = true;
+            } else {
+                push(&mut out, folded, &mut pending_space);
+            }
+            continue;
+        }
+        let mut buf = [0u8; 4];
+        for lower in c.to_lowercase() {
+            push(&mut out, lower.encode_utf8(&mut buf), &mut pending_space);
+        }
+    }
+    out
+}
+
+/// Levenshtein distance in Unicode code points (insertions, deletions, substitutions).
+///
+/// ```
+/// use emend::profile::levels::levenshtein;
+/// assert_eq!(levenshtein("kitten", "sitting"), 3);
+/// ```
+pub fn levenshtein(a: &str, b: &str) -> usize {
+    let a: Vec<char> = a.chars().collect();
+    let b: Vec<char> = b.chars().collect();
+    let mut prev: Vec<usize> = (0..=b.len()).collect();
+    let mut cur = vec![0; b.len() + 1];
+    for (i, ca) in a.iter().enumerate() {
+        cur[0] = i + 1;
+        for (j, cb) in b.iter().enumerate() {
+            let substitute = prev[j] + usize::from(ca != cb);
+            cur[j + 1] = substitute.min(prev[j + 1] + 1).min(cur[j] + 1);
+        }
+        std::mem::swap(&mut prev, &mut cur);
+    }
+    prev[b.len()]
+}
+
+/// Jaro similarity in [0, 1]: `m` matching code points (equal and at most
+/// `⌊max(|a|, |b|)/2⌋ − 1` apart), `t` half the out-of-order matches,
+/// `J = (m/|a| + m/|b| + (m − t)/m) / 3`, and 0 when `m = 0`. Two empty strings give 1.
+pub fn jaro(a: &str, b: &str) -> f64 {
+    let a: Vec<char> = a.chars().collect();
+    let b: Vec<char> = b.chars().collect();
+    if a.is_empty() && b.is_empty() {
+        return 1.0;
+    }
+    if a.is_empty() || b.is_empty() {
+        return 0.0;
+    }
+    let window = (a.len().max(b.len()) / 2).saturating_sub(1);
+    let mut b_used = vec![false; b.len()];
+    let mut a_matched = Vec::with_capacity(a.len());
+    for (i, ca) in a.iter().enumerate() {
+        let lo = i.saturating_sub(window);
+        let hi = (i + window + 1).min(b.len());
+        for j in lo..hi {
+            if !b_used[j] && b[j] == *ca {
+                b_used[j] = true;
+                a_matched.push(*ca);
+                break;
+            }
+        }
+    }
+    let m = a_matched.len();
+    if m == 0 {
+        return 0.0;
+    }
+    let b_matched = b
+        .iter()
+        .zip(&b_used)
+        .filter(|(_, used)| **used)
+        .map(|(c, _)| c);
+    let half_transpositions = a_matched
+        .iter()
+        .zip(b_matched)
+        .filter(|(x, y)| x != y)
+        .count();
+    let m = m as f64;
+    let t = (half_transpositions / 2) as f64;
+    (m / a.len() as f64 + m / b.len() as f64 + (m - t) / m) / 3.0
+}
+
+/// Jaro–Winkler similarity: `J + l·0.1·(1 − J)` with `l` the common prefix length capped at
+/// 4, applied only when `J > 0.7` (Winkler's boost threshold).
+///
+/// ```
+/// use emend::profile::levels::jaro_winkler;
+/// assert!((jaro_winkler("MARTHA", "MARHTA") - 0.9611).abs() < 1e-4);
+/// ```
+pub fn jaro_winkler(a: &str, b: &str) -> f64 {
+    let j = jaro(a, b);
+    if j <= 0.7 {
+        return j;
+    }
+    let prefix = a
+        .chars()
+        .zip(b.chars())
+        .take(4)
+        .take_while(|(x, y)| x == y)
+        .count();
+    j + prefix as f64 * 0.1 * (1.0 - j)
+}
+
+/// A level with how many cells hold it.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct LevelCount {
+    /// The value exactly as written.
+    pub value: String,
+    /// How many cells hold it.
+    pub count: u64,
+}
+
+/// Spellings that look like one value, with the spelling to keep.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct LevelGroup {
+    /// The suggested canonical form: the most frequent spelling (ties: the smaller string).
+    pub canonical: String,
+    /// Every spelling in the group, most frequent first; the canonical one included.
+    pub members: Vec<LevelCount>,
+    /// Cells over all members.
+    pub total: u64,
+}
+
+impl LevelGroup {
+    /// The members other than the canonical form: the ones a recode would change.
+    pub fn variants(&self) -> impl Iterator<Item = &LevelCount> {
+        self.members.iter().filter(|m| m.value != self.canonical)
+    }
+}
+
+/// Edits allowed between two spellings of one word or value of `len` code points: none
+/// under 4 (codes such as "A" and "B" are one edit apart), 1 up to 6, 2 above.
+pub fn allowed_edits(len: usize) -> usize {
+    match len {
+        0..=3 => 0,
+        4..=6 => 1,
+        _ => 2,
+    }
+}
+
+/// Whether two folded keys are close enough to be one value.
+///
+/// Keys with different digits never match ("Site 1" and "Site 2" are two sites). Otherwise
+/// the keys match when their Levenshtein distance is within [`allowed_edits`] of the shorter
+/// length, or when Jaro–Winkler ≥ `jw_threshold` with at least 8 code points and distance
+/// ≤ 3. When both keys have the same number of words (more than one), every pair of
+/// differing words must also be within [`allowed_edits`] of its own length, so that a
+/// whole short word cannot change ("Mill Creek North" and "Mill Creek South" stay apart).
+pub fn keys_match(a: &str, b: &str, jw_threshold: f64) -> bool {
+    if a == b {
+        return true;
+    }
+    let digits = |s: &str| s.chars().filter(char::is_ascii_digit).collect::<Vec<_>>();
+    if digits(a) != digits(b) {
+        return false;
+    }
+    let len = a.chars().count().min(b.chars().count());
+    let distance = levenshtein(a, b);
+    let close = distance <= allowed_edits(len)
+        || (len >= 8 && distance <= 3 && jaro_winkler(a, b) >= jw_threshold);
+    if !close {
+        return false;
+    }
+    let (wa, wb) = (a.split(' '), b.split(' '));
+    if a.split(' ').count() != b.split(' ').count() || a.split(' ').count() < 2 {
+        return true;
+    }
+    wa.zip(wb).all(|(x, y)| {
+        x == y || levenshtein(x, y) <= allowed_edits(x.chars().count().min(y.chars().count()))
+    })
+}
+
+/// Groups levels that are one value spelled differently.
+///
+/// `levels` should be the most frequent levels (a few hundred at most: the fuzzy pass
+/// compares keys pairwise). Levels with equal [`fold_key`] always group; then each key group,
+/// most frequent first, joins the first earlier group whose leading key it matches under
+/// [`keys_match`] (comparing with the leader only, so chains of small edits do not snowball).
+/// Only groups with two or more spellings are returned, largest first.
+///
+/// ```
+/// use emend::profile::levels::near_duplicate_groups;
+/// let groups = near_duplicate_groups(&[("Mill Creek", 40), ("mill craek", 2), ("Oak Flat", 9)], 0.92);
+/// assert_eq!(groups[0].canonical, "Mill Creek");
+/// assert_eq!(groups[0].total, 42);
+/// ```
+pub fn near_duplicate_groups(levels: &[(&str, u64)], jw_threshold: f64) -> Vec<LevelGroup> {
+    // Exact key groups, in first-seen order.
+    let mut keyed: Vec<(String, Vec<LevelCount>)> = Vec::new();
+    let mut index: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
+    for &(value, count) in levels {
+        let key = fold_key(value);
+        if key.is_empty() {
+            continue;
+        }
+        let member = LevelCount {
+            value: value.to_owned(),
+            count,
+        };
+        match index.get(&key) {
+            Some(&i) => keyed[i].1.push(member),
+            None => {
+                index.insert(key.clone(), keyed.len());
+                keyed.push((key, vec![member]));
+            }
+        }
+    }
+    let total = |members: &[LevelCount]| members.iter().map(|m| m.count).sum::<u64>();
+    keyed.sort_by(|a, b| total(&b.1).cmp(&total(&a.1)).then_with(|| a.0.cmp(&b.0)));
+
+    // Fuzzy pass: each key group joins the first leader it matches.
+    let mut clusters: Vec<(String, Vec<LevelCount>)> = Vec::new();
+    for (key, members) in keyed {
+        match clusters
+            .iter_mut()
+            .find(|(leader, _)| keys_match(leader, &key, jw_threshold))
+        {
+            Some((_, existing)) => existing.extend(members),
+            None => clusters.push((key, members)),
+        }
+    }
+
+    let mut groups: Vec<LevelGroup> = clusters
+        .into_iter()
+        .filter(|(_, members)| members.len() >= 2)
+        .map(|(_, mut members)| {
+            members.sort_by(|a, b| b.count.cmp(&a.count).then_with(|| a.value.cmp(&b.value)));
+            LevelGroup {
+                canonical: members[0].value.clone(),
+                total: total(&members),
+                members,
+            }
+        })
+        .collect();
+    groups.sort_by(|a, b| {
+        b.total
+            .cmp(&a.total)
+            .then_with(|| a.canonical.cmp(&b.canonical))
+    });
+    groups
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::profile::testdata::reference;
+
+    #[test]
+    fn fold_tables_cover_their_blocks() {
+        // Every table entry folds to ASCII letters or a separator.
+        for code in 0xC0u32..=0x17F {
+            let c = char::from_u32(code).unwrap();
+            let folded = fold_char(c).unwrap();
+            assert!(
+                folded == " " || folded.bytes().all(|b| b.is_ascii_lowercase()),
+                "U+{code:04X} folds to {folded:?}"
+            );
+        }
+    }
+
+    fn check_fold(input: &str, expected: &str) {
+        assert_eq!(fold_key(input), expected, "input {input:?}");
+    }
+
+    #[test]
+    fn folding() {
+        check_fold("Mill Creek", "mill creek");
+        check_fold("  MILL   CREEK ", "mill creek");
+        check_fold("Mill_Creek.", "mill creek");
+        check_fold("São Tomé", "sao tome");
+        check_fold("Straße", "strasse");
+        check_fold("Łódź", "lodz");
+        check_fold("Œuvre Ĳssel", "oeuvre ijssel");
+        check_fold("Dvořák", "dvorak");
+        check_fold("O'Brien", "obrien");
+        check_fold("3×4", "3 4");
+        check_fold("ΑΒΓ", "αβγ");
+        check_fold("---", "");
+    }
+
+    #[test]
+    fn levenshtein_reference() {
+        // Source: Levenshtein (1966); values in shared/reference/string_distance.json,
+        // `levenshtein_family` (rapidfuzz 3.14.6 and jellyfish 1.3.0 agree; exact integers,
+        // counted in code points).
+        let json = reference("string_distance.json");
+        let rows = json["levenshtein_family"].as_array().unwrap();
+        assert_eq!(rows.len(), 15);
+        for row in rows {
+            let (a, b) = (row["a"].as_str().unwrap(), row["b"].as_str().unwrap());
+            let want = row["levenshtein"].as_u64().unwrap() as usize;
+            assert_eq!(levenshtein(a, b), want, "{a:?} / {b:?}");
+        }
+    }
+
+    #[test]
+    fn jaro_winkler_reference() {
+        // Source: Winkler (1990) table as remembered in shared/reference/string_distance.json
+        // `jaro_and_jaro_winkler`: rows with rounded_3dp_matches_published = true are checked
+        // against the published 3-decimal values; every row is checked against the
+        // jellyfish 1.3.0 / rapidfuzz 3.14.6 computed values to 1e-12.
+        let json = reference("string_distance.json");
+        let rows = json["jaro_and_jaro_winkler"].as_array().unwrap();
+        let mut published = 0;
+        for row in rows {
+            let (a, b) = (row["a"].as_str().unwrap(), row["b"].as_str().unwrap());
+            let (j, jw) = (jaro(a, b), jaro_winkler(a, b));
+            let cj = row["computed_jaro"].as_f64().unwrap();
+            let cjw = row["computed_jaro_winkler"].as_f64().unwrap();
+            assert!((j - cj).abs() < 1e-12, "jaro {a}/{b}: {j} vs {cj}");
+            assert!(
+                (jw - cjw).abs() < 1e-12,
+                "jaro-winkler {a}/{b}: {jw} vs {cjw}"
+            );
+            if row["rounded_3dp_matches_published"].as_bool().unwrap() {
+                published += 1;
+                let pj = row["published_jaro_from_memory"].as_f64().unwrap();
+                let pjw = row["published_jaro_winkler_from_memory"].as_f64().unwrap();
+                assert!((j - pj).abs() <= 0.0005 + 1e-12, "published jaro {a}/{b}");
+                assert!((jw - pjw).abs() <= 0.0005 + 1e-12, "published jw {a}/{b}");
+            }
+        }
+        assert_eq!(published, 23);
+        // Source: same file, `boost_threshold_examples` (bonus only when J > 0.7).
+        for row in json["boost_threshold_examples"].as_array().unwrap() {
+            let (a, b) = (row["a"].as_str().unwrap(), row["b"].as_str().unwrap());
+            let want = row["computed_jaro_winkler"].as_f64().unwrap();
+            assert!((jaro_winkler(a, b) - want).abs() < 1e-12, "{a}/{b}");
+        }
+    }
+
+    #[test]
+    fn jaro_edges() {
+        assert_eq!(jaro("", ""), 1.0);
+        assert_eq!(jaro("abc", ""), 0.0);
+        assert_eq!(jaro("abc", "xyz"), 0.0);
+        assert_eq!(jaro_winkler("same", "same"), 1.0);
+    }
+
+    fn check_match(a: &str, b: &str, expected: bool) {
+        let (ka, kb) = (fold_key(a), fold_key(b));
+        assert_eq!(keys_match(&ka, &kb, 0.92), expected, "{a:?} / {b:?}");
+    }
+
+    #[test]
+    fn matching_rules() {
+        check_match("Mill Creek", "mill craek", true);
+        check_match("Mill Creek", "Mill Creeek", true);
+        check_match("Springfield", "Springfeild", true);
+        check_match("Shackleford", "Shackelford", true);
+        check_match("Site 1", "Site 2", false);
+        check_match("A", "B", false);
+        check_match("male", "female", false);
+        check_match("Mill Creek North", "Mill Creek South", false);
+        check_match("Oak Flat", "Elm Flat", false);
+        check_match("Yes", "YES ", true);
+    }
+
+    fn check_groups(levels: &[(&str, u64)], expected: &[(&str, &[&str])]) {
+        let groups = near_duplicate_groups(levels, 0.92);
+        let got: Vec<(&str, Vec<&str>)> = groups
+            .iter()
+            .map(|g| {
+                (
+                    g.canonical.as_str(),
+                    g.members.iter().map(|m| m.value.as_str()).collect(),
+                )
+            })
+            .collect();
+        let want: Vec<(&str, Vec<&str>)> = expected.iter().map(|(c, m)| (*c, m.to_vec())).collect();
+        assert_eq!(got, want, "{levels:?}");
+    }
+
+    #[test]
+    fn grouping() {
+        check_groups(
+            &[
+                ("Mill Creek", 120),
+                ("Oak Flat", 80),
+                ("mill creek", 7),
+                ("Mill  Creek ", 3),
+                ("mill craek", 1),
+                ("Oak flat", 2),
+                ("Pine Ridge", 50),
+            ],
+            &[
+                (
+                    "Mill Creek",
+                    &["Mill Creek", "mill creek", "Mill  Creek ", "mill craek"],
+                ),
+                ("Oak Flat", &["Oak Flat", "Oak flat"]),
+            ],
+        );
+        // Diacritics and punctuation.
+        check_groups(
+            &[("São Paulo", 10), ("Sao Paulo", 30), ("sao-paulo", 1)],
+            &[("Sao Paulo", &["Sao Paulo", "São Paulo", "sao-paulo"])],
+        );
+        // Distinct codes and numbered sites stay apart.
+        check_groups(&[("A", 5), ("B", 5), ("Site 1", 4), ("Site 2", 4)], &[]);
+        // A tie in counts picks the smaller string as canonical.
+        check_groups(
+            &[("north", 2), ("North", 2)],
+            &[("North", &["North", "north"])],
+        );
+    }
+}

@@ -1,0 +1,443 @@
+//! Profile of a whole table: one [`ColumnProfiler`] per column, plus cheap cross-column
+//! checks of blank patterns.
+//!
+//! For the first `max_pair_columns` columns (at most 64, one bit each), every row adds one
+//! to `blank_filled[a][b]` for each pair where `a` is blank and `b` is filled. With each
+//! column's filled count this gives all four blank/filled combinations of every pair,
+//! without storing rows. Two patterns are reported when a few rows break them:
+//! *paired* (filled together and blank together) and *alternative* (exactly one of the two
+//! filled). Columns past the limit are profiled alone. Cost per row is
+//! O(blank × filled) among tracked columns, at most 32 × 32 pair updates.
+
+use std::collections::BTreeMap;
+
+use serde::{Deserialize, Serialize};
+
+use super::column::{ColumnProfile, ColumnProfiler, Flag, ProfileOptions};
+use super::finding::{
+    Finding, FindingDetail, FindingKind, PairCounts, PairPattern, Severity, sort_findings,
+};
+
+/// The most columns whose pairs are tracked (one bit each in a `u64`).
+pub const MAX_PAIR_COLUMNS: usize = 64;
+
+/// Row positions kept per pair, for listing rows that break a pattern.
+const PAIR_ROWS_KEPT: usize = 3;
+
+/// Knobs for a table.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct TableOptions {
+    /// Options for every column; their `declared_codes` apply to all columns.
+    pub column: ProfileOptions,
+    /// Further declared missing codes by column name.
+    pub declared_codes: BTreeMap<String, Vec<String>>,
+    /// How many leading columns get pair checks; capped at [`MAX_PAIR_COLUMNS`]. Default 64.
+    pub max_pair_columns: usize,
+    /// Rows that must follow a pattern on each side before breaks are reported. Default 10.
+    pub pair_min_support: u64,
+    /// The most breaking rows, as a share of the rows following the pattern. Default 0.05.
+    pub pair_exception_share: f64,
+}
+
+impl Default for TableOptions {
+    fn default() -> Self {
+        TableOptions {
+            column: ProfileOptions::default(),
+            declared_codes: BTreeMap::new(),
+            max_pair_columns: MAX_PAIR_COLUMNS,
+            pair_min_support: 10,
+            pair_exception_share: 0.05,
+        }
+    }
+}
+
+/// Every figure of a table.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct TableProfile {
+    /// Data rows (header excluded).
+    pub n_rows: u64,
+    /// One profile per column, in header order.
+    pub columns: Vec<ColumnProfile>,
+    /// All findings, of every column and across columns, worst first.
+    pub findings: Vec<Finding>,
+}
+
+/// Accumulates a table row by row.
+///
+/// ```
+/// use emend::profile::{TableOptions, TableProfiler};
+/// let mut t = TableProfiler::new(&["site", "count"], TableOptions::default());
+/// t.push_row(&[Some("Mill Creek"), Some("12")]);
+/// t.push_row(&[Some("mill creek"), Some("")]);
+/// let profile = t.finish();
+/// assert_eq!(profile.n_rows, 2);
+/// assert_eq!(profile.columns[1].counts.blank, 1);
+/// ```
+pub struct TableProfiler {
+    columns: Vec<ColumnProfiler>,
+    n_rows: u64,
+    tracked: usize,
+    blank_filled: Vec<u64>,
+    pair_rows: Vec<[u64; PAIR_ROWS_KEPT]>,
+    options: TableOptions,
+}
+
+impl TableProfiler {
+    /// Starts a table with the given header.
+    pub fn new<S: AsRef<str>>(header: &[S], options: TableOptions) -> TableProfiler {
+        let columns = header
+            .iter()
+            .map(|name| {
+                let name = name.as_ref();
+                let mut column = options.column.clone();
+                if let Some(codes) = options.declared_codes.get(name) {
+                    column.declared_codes.extend(codes.iter().cloned());
+                }
+                ColumnProfiler::new(name, column)
+            })
+            .collect::<Vec<_>>();
+        let tracked = columns
+            .len()
+            .min(options.max_pair_columns)
+            .min(MAX_PAIR_COLUMNS);
+        TableProfiler {
+            columns,
+            n_rows: 0,
+            tracked,
+            blank_filled: vec![0; tracked * tracked],
+            pair_rows: vec![[0; PAIR_ROWS_KEPT]; tracked * tracked],
+            options,
+        }
+    }
+
+    /// Adds the next data row. `None` is a cell declared missing by a fix. A row shorter
+    /// than the header counts its absent cells as blank; extra cells are ignored (ingest
+    /// refuses ragged rows, so neither should happen).
+    pub fn push_row(&mut self, row: &[Option<&str>]) {
+        self.n_rows += 1;
+        let mut blank_mask = 0u64;
+        for (i, column) in self.columns.iter_mut().enumerate() {
+            let cell = row.get(i).copied().unwrap_or(Some(""));
+            let filled = column.push_cell(cell);
+            if i < self.tracked && !filled {
+                blank_mask |= 1 << i;
+            }
+        }
+        if self.tracked == 0 || blank_mask == 0 {
+            return;
+        }
+        let all = if self.tracked == 64 {
+            u64::MAX
+        } else {
+            (1u64 << self.tracked) - 1
+        };
+        let filled_mask = !blank_mask & all;
+        let mut blanks = blank_mask;
+        while blanks != 0 {
+            let a = blanks.trailing_zeros() as usize;
+            blanks &= blanks - 1;
+            let mut filled = filled_mask;
+            while filled != 0 {
+                let b = filled.trailing_zeros() as usize;
+                filled &= filled - 1;
+                let idx = a * self.tracked + b;
+                self.blank_filled[idx] += 1;
+                if let Some(slot) =
+                    self.pair_rows[idx].get_mut((self.blank_filled[idx] - 1) as usize)
+                {
+                    *slot = self.n_rows;
+                }
+            }
+        }
+    }
+
+    /// Computes every column's profile and all findings.
+    pub fn finish(self) -> TableProfile {
+        let TableProfiler {
+            columns,
+            n_rows,
+            tracked,
+            blank_filled,
+            pair_rows,
+            options,
+        } = self;
+        let mut columns: Vec<ColumnProfile> =
+            columns.into_iter().map(ColumnProfiler::finish).collect();
+        let mut findings: Vec<Finding> = columns
+            .iter()
+            .flat_map(|c| c.findings.iter().cloned())
+            .collect();
+
+        let pairs = PairTable {
+            tracked,
+            blank_filled: &blank_filled,
+            pair_rows: &pair_rows,
+        };
+        let filled: Vec<u64> = columns.iter().map(|c| c.counts.present).collect();
+        for a in 0..tracked {
+            for b in a + 1..tracked {
+                let Some(finding) = pairs.check(a, b, &columns, &filled, n_rows, &options) else {
+                    continue;
+                };
+                let (name_a, name_b) = (columns[a].name.clone(), columns[b].name.clone());
+                columns[a].flags.push(Flag::Contradicted { other: name_b });
+                columns[b].flags.push(Flag::Contradicted { other: name_a });
+                findings.push(finding);
+            }
+        }
+        sort_findings(&mut findings);
+        TableProfile {
+            n_rows,
+            columns,
+            findings,
+        }
+    }
+}
+
+/// The pair counts gathered while streaming.
+struct PairTable<'a> {
+    tracked: usize,
+    blank_filled: &'a [u64],
+    pair_rows: &'a [[u64; PAIR_ROWS_KEPT]],
+}
+
+impl PairTable<'_> {
+    /// Rows where `a` is blank and `b` filled, and the first few of them.
+    fn blank_filled(&self, a: usize, b: usize) -> (u64, &[u64]) {
+        let idx = a * self.tracked + b;
+        let n = self.blank_filled[idx];
+        (n, &self.pair_rows[idx][..(n as usize).min(PAIR_ROWS_KEPT)])
+    }
+
+    fn check(
+        &self,
+        a: usize,
+        b: usize,
+        columns: &[ColumnProfile],
+        filled: &[u64],
+        n_rows: u64,
+        options: &TableOptions,
+    ) -> Option<Finding> {
+        let (only_b, rows_only_b) = self.blank_filled(a, b);
+        let (only_a, rows_only_a) = self.blank_filled(b, a);
+        let both = filled[b] - only_b;
+        let neither = n_rows - both - only_a - only_b;
+        let counts = PairCounts {
+            both_filled: both,
+            both_blank: neither,
+            only_other_filled: only_b,
+            only_this_filled: only_a,
+        };
+        let support = options.pair_min_support;
+        let share = options.pair_exception_share;
+        let (name_a, name_b) = (&columns[a].name, &columns[b].name);
+
+        let paired_breaks = only_a + only_b;
+        if both >= support
+            && neither >= support
+            && paired_breaks > 0
+            && paired_breaks as f64 <= share * (both + neither) as f64
+        {
+            let mut rows: Vec<u64> = rows_only_a.iter().chain(rows_only_b).copied().collect();
+            rows.sort_unstable();
+            return Some(Finding {
+                column: name_a.clone(),
+                kind: FindingKind::Contradiction,
+                severity: Severity::High,
+                message: format!(
+                    "{name_a:?} and {name_b:?} are filled and blank together in {} rows, \
+                     but only {name_a:?} is filled in {only_a} and only {name_b:?} in {only_b}",
+                    both + neither
+                ),
+                detail: FindingDetail::Contradiction {
+                    other: name_b.clone(),
+                    pattern: PairPattern::Paired,
+                    counts,
+                    rows,
+                },
+                suggestion: None,
+            });
+        }
+        if only_a >= support
+            && only_b >= support
+            && both > 0
+            && both as f64 <= share * (only_a + only_b) as f64
+        {
+            return Some(Finding {
+                column: name_a.clone(),
+                kind: FindingKind::Contradiction,
+                severity: Severity::High,
+                message: format!(
+                    "exactly one of {name_a:?} and {name_b:?} is filled in {} rows, \
+                     but both are filled in {both}",
+                    only_a + only_b
+                ),
+                detail: FindingDetail::Contradiction {
+                    other: name_b.clone(),
+                    pattern: PairPattern::Alternative,
+                    counts,
+                    // Rows with both filled are not kept; only their count is known.
+                    rows: Vec::new(),
+                },
+                suggestion: None,
+            });
+        }
+        None
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Builds a table from rows of text where "." stands for a blank cell.
+    fn table(header: &[&str], rows: &[&[&str]]) -> TableProfile {
+        let mut t = TableProfiler::new(header, TableOptions::default());
+        for row in rows {
+            let cells: Vec<Option<&str>> = row
+                .iter()
+                .map(|c| Some(if *c == "." { "" } else { *c }))
+                .collect();
+            t.push_row(&cells);
+        }
+        t.finish()
+    }
+
+    fn contradictions(p: &TableProfile) -> Vec<(String, PairPattern, Vec<u64>)> {
+        p.findings
+            .iter()
+            .filter_map(|f| match &f.detail {
+                FindingDetail::Contradiction {
+                    other,
+                    pattern,
+                    rows,
+                    ..
+                } => Some((format!("{}/{other}", f.column), *pattern, rows.clone())),
+                _ => None,
+            })
+            .collect()
+    }
+
+    #[test]
+    fn paired_columns_broken_in_one_row() {
+        // "dose" is given exactly when "drug" is, except row 25.
+        let mut rows: Vec<Vec<&str>> = Vec::new();
+        for i in 0..40 {
+            rows.push(if i % 2 == 0 {
+                vec!["x", "5", "a"]
+            } else {
+                vec![".", ".", "b"]
+            });
+        }
+        rows[24] = vec![".", "7", "a"];
+        let refs: Vec<&[&str]> = rows.iter().map(Vec::as_slice).collect();
+        let p = table(&["drug", "dose", "other"], &refs);
+        assert_eq!(
+            contradictions(&p),
+            [("drug/dose".to_owned(), PairPattern::Paired, vec![25])]
+        );
+        assert_eq!(p.findings[0].kind, FindingKind::Contradiction);
+        assert!(p.columns[0].flags.contains(&Flag::Contradicted {
+            other: "dose".into()
+        }));
+    }
+
+    #[test]
+    fn alternative_columns_both_filled_once() {
+        let mut rows: Vec<Vec<&str>> = Vec::new();
+        for i in 0..40 {
+            rows.push(if i % 2 == 0 {
+                vec!["70", "."]
+            } else {
+                vec![".", "150"]
+            });
+        }
+        rows[3] = vec!["70", "155"];
+        let refs: Vec<&[&str]> = rows.iter().map(Vec::as_slice).collect();
+        let p = table(&["weight_kg", "weight_lb"], &refs);
+        assert_eq!(
+            contradictions(&p),
+            [(
+                "weight_kg/weight_lb".to_owned(),
+                PairPattern::Alternative,
+                vec![]
+            )]
+        );
+    }
+
+    #[test]
+    fn clean_patterns_and_noise_are_quiet() {
+        // A perfect pair, and a column with scattered blanks, raise nothing.
+        let mut rows: Vec<Vec<&str>> = Vec::new();
+        for i in 0..40 {
+            let paired = if i % 2 == 0 { ["x", "5"] } else { [".", "."] };
+            let noisy = if i % 7 == 0 { "." } else { "n" };
+            rows.push(vec![paired[0], paired[1], noisy]);
+        }
+        let refs: Vec<&[&str]> = rows.iter().map(Vec::as_slice).collect();
+        let p = table(&["a", "b", "c"], &refs);
+        assert_eq!(contradictions(&p), []);
+    }
+
+    #[test]
+    fn short_rows_and_declared_codes() {
+        let options = TableOptions {
+            declared_codes: BTreeMap::from([("b".to_owned(), vec!["-9".to_owned()])]),
+            ..TableOptions::default()
+        };
+        let mut t = TableProfiler::new(&["a", "b"], options);
+        t.push_row(&[Some("1")]);
+        t.push_row(&[Some("2"), Some("-9")]);
+        t.push_row(&[None, Some("3")]);
+        let p = t.finish();
+        assert_eq!(p.n_rows, 3);
+        let b = &p.columns[1].counts;
+        assert_eq!((b.blank, b.declared_missing, b.present), (1, 1, 1));
+        assert_eq!(p.columns[0].counts.declared_missing, 1);
+    }
+
+    #[test]
+    fn findings_worst_first_across_columns() {
+        let mut rows: Vec<Vec<&str>> = Vec::new();
+        for value in ["10", "12", "11", "13", "9", "-999", "-999", "12", "11"] {
+            rows.push(vec!["same", value]);
+        }
+        let refs: Vec<&[&str]> = rows.iter().map(Vec::as_slice).collect();
+        let p = table(&["constant", "value"], &refs);
+        let order: Vec<(FindingKind, Severity)> =
+            p.findings.iter().map(|f| (f.kind, f.severity)).collect();
+        assert_eq!(
+            order,
+            [
+                (FindingKind::SuspectedMissingCode, Severity::High),
+                (FindingKind::Constant, Severity::Medium),
+            ]
+        );
+    }
+
+    #[test]
+    fn profile_serializes() {
+        let p = table(
+            &["site", "n"],
+            &[&["Mill Creek", "3"], &["mill creek", "."]],
+        );
+        let json = serde_json::to_value(&p).unwrap();
+        assert_eq!(json["n_rows"], 2);
+        assert_eq!(json["columns"][1]["inferred"], "integer");
+        assert_eq!(json["columns"][1]["counts"]["blank"], 1);
+        assert_eq!(json["findings"][0]["suggestion"]["action"], "recode");
+    }
+
+    #[test]
+    fn wide_tables_track_only_the_first_columns() {
+        let header: Vec<String> = (0..70).map(|i| format!("c{i}")).collect();
+        let mut t = TableProfiler::new(&header, TableOptions::default());
+        let row: Vec<Option<&str>> = (0..70)
+            .map(|i| Some(if i % 2 == 0 { "" } else { "1" }))
+            .collect();
+        t.push_row(&row);
+        let p = t.finish();
+        assert_eq!(p.columns.len(), 70);
+        assert_eq!(p.columns[69].counts.present, 1);
+    }
+}
