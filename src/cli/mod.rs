@@ -6,6 +6,7 @@ mod fixes;
 mod identity;
 mod look;
 mod out;
+mod profile;
 mod record;
 mod trust;
 
@@ -49,6 +50,8 @@ enum Command {
     Tables(JsonFlag),
     /// Print rows of a table version
     Show(look::ShowArgs),
+    /// Find what needs cleaning: types, missing codes, outliers, spellings, suspect columns
+    Profile(profile::ProfileArgs),
     /// Set one cell to a value (or to missing)
     Set(fixes::SetArgs),
     /// Replace values across a column
@@ -144,6 +147,7 @@ fn run(cli: Cli) -> Result<i32> {
         Command::Ingest(a) => record::ingest(a),
         Command::Tables(f) => look::tables(f.json),
         Command::Show(a) => look::show(a),
+        Command::Profile(a) => profile::run(a),
         Command::Set(a) => fixes::set(a),
         Command::Recode(a) => fixes::recode(a),
         Command::Missing(a) => fixes::missing(a),

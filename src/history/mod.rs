@@ -6,6 +6,7 @@
 //! the clock or the environment.
 
 pub mod export;
+pub mod profile;
 pub mod verify;
 pub mod version;
 

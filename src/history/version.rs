@@ -32,6 +32,8 @@ pub struct Version {
     pub seq: u64,
     /// The ingest commit of the extract this version is built on.
     pub ingest_seq: u64,
+    /// The raw extract, with no fixes applied.
+    pub raw: bool,
     /// The extract's record (header, key, dialect).
     pub def: IngestRecord,
     /// Net cell edits: row id -> (column index, value).
@@ -55,6 +57,7 @@ impl Version {
             table: table.to_string(),
             seq,
             ingest_seq,
+            raw,
             distrusted: vec![false; def.header.len()],
             def,
             edits: HashMap::new(),

@@ -399,6 +399,38 @@ impl ColumnProfiler {
             .collect();
         let near_duplicates = near_duplicate_groups(&text_levels, options.jaro_winkler_threshold);
 
+        // In a coded (categorical) column, a level far rarer than the others is most likely a
+        // free-text write-in: at most 0.5% of present cells and at most a twentieth of the
+        // most frequent level. Spellings already grouped as near-duplicates are left to that
+        // finding. (Thresholds are our own choice, not from a published source.)
+        let (write_in_cells, write_ins) =
+            if inferred == InferredType::Categorical && present >= 100 && write_ins.is_empty() {
+                let top_count = sorted.first().map(|(_, l)| l.count).unwrap_or(0);
+                let grouped = |v: &str| {
+                    near_duplicates
+                        .iter()
+                        .any(|g| g.members.iter().any(|m| m.value == v))
+                };
+                let rare: Vec<WriteIn> = sorted
+                    .iter()
+                    .filter(|(value, level)| {
+                        level.count * 200 <= present
+                            && level.count * 20 <= top_count
+                            && level.kind != CellKind::MissingToken
+                            && !grouped(value)
+                    })
+                    .map(|(value, level)| WriteIn {
+                        value: (*value).to_owned(),
+                        count: level.count,
+                        rows: level.rows[..(level.count as usize).min(ROWS_KEPT)].to_vec(),
+                    })
+                    .collect();
+                let n: u64 = rare.iter().map(|w| w.count).sum();
+                (n, rare.into_iter().take(options.max_listed).collect())
+            } else {
+                (write_in_cells, write_ins)
+            };
+
         let mut flags = Vec::new();
         let missing_share = counts.missing() as f64 / cells.max(1) as f64;
         if cells > 0 && missing_share > options.mostly_missing_share {
@@ -450,7 +482,10 @@ impl ColumnProfiler {
 
 /// Formats a number the way it would be typed: shortest exact form, no exponent.
 fn fmt_num(x: f64) -> String {
-    format!("{x}")
+    // Round to 12 significant digits first, so float noise (1.7600000000000002) never reaches
+    // a message or a suggested command.
+    let rounded: f64 = format!("{x:.11e}").parse().unwrap_or(x);
+    format!("{rounded}")
 }
 
 /// "1 cell", "3 cells".
@@ -605,6 +640,7 @@ fn column_findings(
             InferredType::Decimal => "numbers",
             InferredType::Date => "dates",
             InferredType::Boolean => "booleans",
+            InferredType::Categorical => "one of the usual codes",
             _ => "the column type",
         };
         add(

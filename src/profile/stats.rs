@@ -349,8 +349,8 @@ pub struct MagnitudeError {
 /// The factors tried for magnitude errors, smallest first.
 pub const MAGNITUDE_FACTORS: [u32; 4] = [10, 100, 1000, 10000];
 
-/// Magnitude errors among sorted values: each distinct value strictly beyond the inner
-/// fences that lands inside them (inclusive) when divided by 10, 100, 1000 or 10000, with
+/// Magnitude errors among sorted values: each distinct value strictly beyond the outer
+/// fences that lands inside the inner fences (inclusive) when divided by 10, 100, 1000 or 10000, with
 /// the smallest such factor. Values in `skip` (suspected sentinels) are left out.
 ///
 /// ```
@@ -362,9 +362,12 @@ pub const MAGNITUDE_FACTORS: [u32; 4] = [10, 100, 1000, 10000];
 /// ```
 pub fn magnitude_errors(sorted: &[f64], fences: &Fences, skip: &[f64]) -> Vec<MagnitudeError> {
     let inside = |x: f64| x >= fences.lower_inner && x <= fences.upper_inner;
+    // Only values beyond an outer fence ("far out") are candidates: a value just past the
+    // inner fence that fits when divided by ten is far more often a real high reading.
+    let far_out = |x: f64| x < fences.lower_outer || x > fences.upper_outer;
     run_lengths(sorted)
         .into_iter()
-        .filter(|vc| !inside(vc.value) && !skip.contains(&vc.value))
+        .filter(|vc| far_out(vc.value) && !skip.contains(&vc.value))
         .filter_map(|vc| {
             MAGNITUDE_FACTORS.iter().find_map(|&factor| {
                 let scaled = vc.value / f64::from(factor);
