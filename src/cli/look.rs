@@ -291,6 +291,7 @@ pub fn summary(body: &CommitBody) -> String {
             r.n_rows,
             r.header.len()
         ),
+        Change::Tag(t) => format!("tag {} on commit {}", t.name, t.target_seq),
         Change::Fixes(list) => {
             let cells: usize = list.iter().map(|r| r.edits.len()).sum();
             format!(
@@ -307,6 +308,7 @@ pub fn log(a: LogArgs) -> Result<i32> {
     let store = super::open_store()?;
     let reader = store.read();
     let trusted: Vec<[u8; 32]> = reader.signers()?.into_iter().map(|s| s.key).collect();
+    let tags = reader.tags()?;
     if let Some(t) = &a.table
         && reader.extract_at(t, u64::MAX)?.is_none()
     {
@@ -332,6 +334,10 @@ pub fn log(a: LogArgs) -> Result<i32> {
                 });
                 let obj = v.as_object_mut().expect("object");
                 match &b.change {
+                    Change::Tag(t) => {
+                        obj.insert("kind".into(), "tag".into());
+                        obj.insert("tag".into(), serde_json::json!({"name": t.name, "target_seq": t.target_seq, "target_id": t.target.to_hex()}));
+                    }
                     Change::Ingest(r) => {
                         obj.insert("kind".into(), "ingest".into());
                         obj.insert("extract".into(), serde_json::json!({"table": r.table, "file": r.file_name, "blake3": r.extract.to_hex(), "bytes": r.n_bytes, "rows": r.n_rows, "columns": r.header, "key": r.key}));
@@ -378,6 +384,14 @@ pub fn log(a: LogArgs) -> Result<i32> {
             paint(DIM, fingerprint(&b.author.key)),
             trust
         )?;
+        let names: Vec<&str> = tags
+            .iter()
+            .filter(|(_, _, target)| *target == c.seq)
+            .map(|(n, _, _)| n.as_str())
+            .collect();
+        if !names.is_empty() {
+            writeln!(o, "    tagged {}", paint(BOLD, names.join(", ")))?;
+        }
         writeln!(o, "    {}", b.message)?;
         writeln!(o, "    {}", paint(DIM, summary(b)))?;
         if let Change::Fixes(list) = &b.change {

@@ -1,6 +1,7 @@
 //! The command line: argument parsing, one module per group of subcommands, human and JSON
 //! output. The only code that prints, reads environment variables or uses clap and anyhow.
 
+mod audit;
 mod demo;
 mod fixes;
 mod identity;
@@ -70,6 +71,14 @@ enum Command {
     Commit(record::CommitArgs),
     /// List commits, newest last
     Log(look::LogArgs),
+    /// Every changed cell, row and mark between two versions
+    Diff(audit::DiffArgs),
+    /// The life of one value (or row, or column): every fix, who, when, why
+    Why(audit::WhyArgs),
+    /// Name a commit with a signed tag
+    Tag(audit::TagArgs),
+    /// List tags
+    Tags(JsonFlag),
     /// Write a table version as CSV (or the raw extract bytes)
     Export(look::ExportArgs),
     /// Check every hash, signature, table version and index row
@@ -133,6 +142,8 @@ fn is_broken_pipe(err: &anyhow::Error) -> bool {
     err.chain().any(|e| {
         e.downcast_ref::<std::io::Error>()
             .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe)
+            || e.downcast_ref::<serde_json::Error>()
+                .is_some_and(|j| j.io_error_kind() == Some(std::io::ErrorKind::BrokenPipe))
             || e.downcast_ref::<emend::Error>().is_some_and(|le| {
                 matches!(le, emend::Error::Io { source, .. } if source.kind() == std::io::ErrorKind::BrokenPipe)
             })
@@ -158,6 +169,10 @@ fn run(cli: Cli) -> Result<i32> {
         Command::Commit(a) => record::commit(a),
         Command::Log(a) => look::log(a),
         Command::Export(a) => look::export(a),
+        Command::Diff(a) => audit::diff_cmd(a),
+        Command::Why(a) => audit::why_cmd(a),
+        Command::Tag(a) => audit::tag_cmd(a),
+        Command::Tags(f) => audit::tags_cmd(f.json),
         Command::Verify(a) => trust::verify(a),
         Command::Demo(a) => demo::run(a),
     }

@@ -227,9 +227,18 @@ pub fn verify(
     }
     expected.sort();
     let actual = reader.index_rows()?;
-    report.n_index_rows =
-        (actual.extracts.len() + actual.cells.len() + actual.marks.len() + actual.versions.len())
-            as u64;
+    report.n_index_rows = (actual.extracts.len()
+        + actual.cells.len()
+        + actual.marks.len()
+        + actual.versions.len()
+        + actual.tags.len()) as u64;
+    compare_rows(
+        &mut report,
+        "tag index",
+        &expected.tags,
+        &actual.tags,
+        |r| format!("tag {} (commit {})", r.0, r.1),
+    );
     compare_rows(
         &mut report,
         "extract index",

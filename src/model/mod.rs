@@ -296,6 +296,17 @@ pub struct IngestRecord {
     pub n_rows: u64,
 }
 
+/// A name given to a commit, signed like any commit.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct TagRecord {
+    /// The tag name.
+    pub name: String,
+    /// The commit it names.
+    pub target: CommitId,
+    /// That commit's sequence number.
+    pub target_seq: u64,
+}
+
 /// What a commit records.
 #[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
 pub enum Change {
@@ -303,6 +314,8 @@ pub enum Change {
     Ingest(IngestRecord),
     /// Fixes, in the order they were recorded.
     Fixes(Vec<FixRecord>),
+    /// A tag on an earlier commit; changes no table.
+    Tag(TagRecord),
 }
 
 /// The recorded hash of a table version produced by a commit.
@@ -366,6 +379,7 @@ impl CommitBody {
                 }
                 out
             }
+            Change::Tag(_) => Vec::new(),
         }
     }
 }

@@ -117,6 +117,8 @@ pub struct IndexRows {
     pub marks: Vec<MarkRow>,
     /// version_index rows: (table, seq, hash, n_rows).
     pub versions: Vec<(String, u64, [u8; 32], u64)>,
+    /// tag rows: (name, tag commit seq, target seq).
+    pub tags: Vec<(String, u64, u64)>,
 }
 
 impl IndexRows {
@@ -131,6 +133,7 @@ impl IndexRows {
     pub fn add_body(&mut self, body: &CommitBody) {
         let seq = body.seq;
         match &body.change {
+            Change::Tag(_) => {}
             Change::Ingest(r) => {
                 self.extracts
                     .push((r.table.clone(), seq, *r.extract.as_bytes()));
@@ -170,6 +173,9 @@ impl IndexRows {
                 }
             }
         }
+        if let Change::Tag(t) = &body.change {
+            self.tags.push((t.name.clone(), seq, t.target_seq));
+        }
         for v in &body.versions {
             self.versions
                 .push((v.table.clone(), seq, *v.hash.as_bytes(), v.n_rows));
@@ -182,6 +188,7 @@ impl IndexRows {
         self.cells.sort();
         self.marks.sort();
         self.versions.sort();
+        self.tags.sort();
     }
 }
 
@@ -522,8 +529,113 @@ impl<'a> Reader<'a> {
         })? {
             out.versions.push(row?);
         }
+        let mut stmt = self.conn.prepare("SELECT name, seq, target_seq FROM tag")?;
+        for row in stmt.query_map([], |r| {
+            Ok((
+                r.get(0)?,
+                r.get::<_, i64>(1)? as u64,
+                r.get::<_, i64>(2)? as u64,
+            ))
+        })? {
+            out.tags.push(row?);
+        }
         out.sort();
         Ok(out)
+    }
+
+    /// The tag `name`: (tag commit seq, target seq).
+    pub fn try_tag(&self, name: &str) -> Result<Option<(u64, u64)>> {
+        Ok(self
+            .conn
+            .prepare_cached("SELECT seq, target_seq FROM tag WHERE name = ?1")?
+            .query_row(params![name], |r| {
+                Ok((r.get::<_, i64>(0)? as u64, r.get::<_, i64>(1)? as u64))
+            })
+            .optional()?)
+    }
+
+    /// Every tag: (name, tag commit seq, target seq), in order of tagging.
+    pub fn tags(&self) -> Result<Vec<(String, u64, u64)>> {
+        let mut stmt = self
+            .conn
+            .prepare("SELECT name, seq, target_seq FROM tag ORDER BY seq")?;
+        let rows = stmt.query_map([], |r| {
+            Ok((
+                r.get(0)?,
+                r.get::<_, i64>(1)? as u64,
+                r.get::<_, i64>(2)? as u64,
+            ))
+        })?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// Edits of one cell with `after < seq <= upto`, oldest first.
+    pub fn cell_history(
+        &self,
+        table: &str,
+        row: &str,
+        column: &str,
+        after: u64,
+        upto: u64,
+    ) -> Result<Vec<CellEditRow>> {
+        let mut stmt = self.conn.prepare_cached(
+            "SELECT col, seq, fix_idx, old, new FROM cell_edit
+             WHERE tbl = ?1 AND row_id = ?2 AND col = ?3 AND seq > ?4 AND seq <= ?5
+             ORDER BY seq, fix_idx",
+        )?;
+        let rows = stmt.query_map(
+            params![table, row, column, after as i64, upto as i64],
+            |r| cell_edit_row(table, row, r),
+        )?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// Edits of every cell of one row with `after < seq <= upto`, oldest first.
+    pub fn row_history(
+        &self,
+        table: &str,
+        row: &str,
+        after: u64,
+        upto: u64,
+    ) -> Result<Vec<CellEditRow>> {
+        let mut stmt = self.conn.prepare_cached(
+            "SELECT col, seq, fix_idx, old, new FROM cell_edit
+             WHERE tbl = ?1 AND row_id = ?2 AND seq > ?3 AND seq <= ?4
+             ORDER BY seq, fix_idx",
+        )?;
+        let rows = stmt.query_map(params![table, row, after as i64, upto as i64], |r| {
+            cell_edit_row(table, row, r)
+        })?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// Marks naming one target (a row id or a column) with `after < seq <= upto`.
+    pub fn marks_of(
+        &self,
+        table: &str,
+        kind: &str,
+        target: &str,
+        after: u64,
+        upto: u64,
+    ) -> Result<Vec<MarkRow>> {
+        let mut stmt = self.conn.prepare_cached(
+            "SELECT seq, fix_idx FROM mark
+             WHERE tbl = ?1 AND kind = ?2 AND target = ?3 AND seq > ?4 AND seq <= ?5
+             ORDER BY seq, fix_idx",
+        )?;
+        let rows = stmt.query_map(
+            params![table, kind, target, after as i64, upto as i64],
+            |r| {
+                Ok(MarkRow {
+                    table: table.to_string(),
+                    kind: kind.to_string(),
+                    target: target.to_string(),
+                    seq: r.get::<_, i64>(0)? as u64,
+                    fix_idx: r.get::<_, i64>(1)? as u64,
+                })
+            },
+        )?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
     }
 
     /// Pending fixes in the order they were recorded.
@@ -680,6 +792,18 @@ fn blob32(r: &rusqlite::Row<'_>, idx: usize) -> rusqlite::Result<[u8; 32]> {
     })
 }
 
+fn cell_edit_row(table: &str, row: &str, r: &rusqlite::Row<'_>) -> rusqlite::Result<CellEditRow> {
+    Ok(CellEditRow {
+        table: table.to_string(),
+        row: row.to_string(),
+        column: r.get(0)?,
+        seq: r.get::<_, i64>(1)? as u64,
+        fix_idx: r.get::<_, i64>(2)? as u64,
+        old: r.get(3)?,
+        new: r.get(4)?,
+    })
+}
+
 fn stored_commit(r: &rusqlite::Row<'_>) -> rusqlite::Result<StoredCommit> {
     Ok(StoredCommit {
         seq: r.get::<_, i64>(0)? as u64,
@@ -771,6 +895,12 @@ impl WriteTx<'_> {
             self.tx.execute(
                 "INSERT INTO mark (tbl, kind, target, seq, fix_idx) VALUES (?1, ?2, ?3, ?4, ?5)",
                 params![m.table, m.kind, m.target, m.seq as i64, m.fix_idx as i64],
+            )?;
+        }
+        for (name, seq, target) in &rows.tags {
+            self.tx.execute(
+                "INSERT INTO tag (name, seq, target_seq) VALUES (?1, ?2, ?3)",
+                params![name, *seq as i64, *target as i64],
             )?;
         }
         for (tbl, seq, hash, n_rows) in &rows.versions {

@@ -96,6 +96,13 @@ CREATE TABLE version_index (
     PRIMARY KEY (tbl, seq)
 ) STRICT, WITHOUT ROWID;
 
+-- Derived: tags (one per tag commit).
+CREATE TABLE tag (
+    name       TEXT PRIMARY KEY,
+    seq        INTEGER NOT NULL REFERENCES commit_log(seq),
+    target_seq INTEGER NOT NULL REFERENCES commit_log(seq)
+) STRICT;
+
 CREATE TRIGGER chunk_no_update BEFORE UPDATE ON chunk
 BEGIN SELECT RAISE(ABORT, 'stored chunks are immutable'); END;
 CREATE TRIGGER chunk_no_delete BEFORE DELETE ON chunk

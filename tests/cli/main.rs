@@ -1,1 +1,9 @@
+//! Integration tests: each drives the real `emend` binary in a fresh temp folder.
 
+mod util;
+
+mod bad_input;
+mod rebuild;
+mod roundtrip;
+mod tamper;
+mod walkthrough;

@@ -104,7 +104,9 @@ impl TestDir {
                 .collect::<Vec<_>>()
                 .join(" ")
         );
-        let out = c.output().unwrap_or_else(|e| panic!("running {cmdline}: {e}"));
+        let out = c
+            .output()
+            .unwrap_or_else(|e| panic!("running {cmdline}: {e}"));
         Output {
             cmdline,
             cwd: c

@@ -24,7 +24,10 @@ fn main_scenario_walkthrough() {
     setup_store(&dir);
     dir.write("river.csv", RIVER_CSV);
     dir.write("lab_sheet_RW-002.txt", LAB_SHEET);
-    dir.write("sites.csv", "from,to\nalder brook,Alder Brook\nALDER BROOK,Alder Brook\n");
+    dir.write(
+        "sites.csv",
+        "from,to\nalder brook,Alder Brook\nALDER BROOK,Alder Brook\n",
+    );
 
     dir.cmd([
         "ingest",
@@ -37,7 +40,11 @@ fn main_scenario_walkthrough() {
         "September extract",
     ])
     .ok()
-    .says(&["ingested river.csv as commit 1", "7 rows × 8 columns", "key sample_id"]);
+    .says(&[
+        "ingested river.csv as commit 1",
+        "7 rows × 8 columns",
+        "key sample_id",
+    ]);
 
     // Record one fix of every kind.
     dir.cmd([
@@ -68,7 +75,7 @@ fn main_scenario_walkthrough() {
         "samples",
         "turbidity_ntu",
         "--why",
-        "-999 means no turbidity meter",
+        "the app writes -999 when no meter was taken",
         "--code",
         "-999",
     ])
@@ -115,7 +122,10 @@ fn main_scenario_walkthrough() {
         "exclude row RW-004",
         "distrust column calibrated",
     ] {
-        assert!(status.contains(needle), "status lacks {needle:?}:\n{status}");
+        assert!(
+            status.contains(needle),
+            "status lacks {needle:?}:\n{status}"
+        );
     }
     let status = dir.cmd(["status", "--json"]).ok().json();
     assert_eq!(status["head"]["seq"], 1);
@@ -127,7 +137,10 @@ fn main_scenario_walkthrough() {
         .ok()
         .says(&["signed commit 2", "6 fixes", "6 cells changed"]);
     let status = dir.cmd(["status"]).ok().stdout();
-    assert!(status.contains("at commit 2") && status.contains("no pending fixes"), "{status}");
+    assert!(
+        status.contains("at commit 2") && status.contains("no pending fixes"),
+        "{status}"
+    );
 
     // Log: human and JSON.
     let log = dir.cmd(["log"]).ok().stdout();
@@ -143,7 +156,7 @@ fn main_scenario_walkthrough() {
         assert!(log.contains(needle), "log lacks {needle:?}:\n{log}");
     }
     assert!(!log.contains("untrusted"), "{log}");
-    let log = dir.cmd(["log", "samples", "--json"]).ok().json();
+    let log = dir.cmd(["log", "--json"]).ok().json();
     let commits = log["commits"].as_array().unwrap();
     assert_eq!(commits.len(), 2);
     assert_eq!(commits[0]["kind"], "ingest");
@@ -158,7 +171,10 @@ fn main_scenario_walkthrough() {
     assert_eq!(commits[1]["author"]["trusted"], true);
     let fixes = commits[1]["fixes"].as_array().unwrap();
     let kinds: Vec<&str> = fixes.iter().map(|f| f["kind"].as_str().unwrap()).collect();
-    assert_eq!(kinds, ["recode", "recode", "missing", "set", "exclude", "distrust"]);
+    assert_eq!(
+        kinds,
+        ["recode", "recode", "missing", "set", "exclude", "distrust"]
+    );
     let cells: Vec<u64> = fixes
         .iter()
         .map(|f| f["cells_changed"].as_u64().unwrap())
@@ -189,7 +205,14 @@ RW-007,Fennel Run,2026-09-05,6.9,12.8,4.1,vol-12
     dir.cmd(["export", "samples", "-o", "clean.csv"]).ok();
     assert_eq!(dir.read("clean.csv"), expected.as_bytes());
     let na = dir
-        .cmd(["export", "samples", "--na", "NA", "--with-excluded", "--with-distrusted"])
+        .cmd([
+            "export",
+            "samples",
+            "--na",
+            "NA",
+            "--with-excluded",
+            "--with-distrusted",
+        ])
         .ok()
         .stdout();
     let parsed = parse_csv(&na, ',');
@@ -197,10 +220,22 @@ RW-007,Fennel Run,2026-09-05,6.9,12.8,4.1,vol-12
     assert_eq!(parsed[0].len(), 8);
     assert_eq!(
         parsed[2],
-        rows(&[&["RW-002", "Alder Brook", "2026-09-01", "7.1", "14.3", "NA", "vol-07", "no"]])[0]
+        rows(&[&[
+            "RW-002",
+            "Alder Brook",
+            "2026-09-01",
+            "7.1",
+            "14.3",
+            "NA",
+            "vol-07",
+            "no"
+        ]])[0]
     );
     assert_eq!(parsed[4][0], "RW-004");
-    assert_eq!(parsed[6][4], "NA", "a blank raw cell is written as --na too");
+    assert_eq!(
+        parsed[6][4], "NA",
+        "a blank raw cell is written as --na too"
+    );
 
     // The raw extract comes back byte for byte, at any revision.
     for at in ["latest", "1", "2", "raw"] {
@@ -219,7 +254,10 @@ RW-007,Fennel Run,2026-09-05,6.9,12.8,4.1,vol-12
     assert_eq!(show["rows"][1]["cells"][5], serde_json::Value::Null);
     assert_eq!(show["rows"][3]["excluded"], true);
     assert_eq!(show["distrusted"][7], true);
-    let raw = dir.cmd(["show", "samples", "--at", "raw", "--json"]).ok().json();
+    let raw = dir
+        .cmd(["show", "samples", "--at", "raw", "--json"])
+        .ok()
+        .json();
     assert_eq!(raw["rows"][1]["cells"][3], "71");
     assert_eq!(raw["rows"][3]["excluded"], false);
     let text = dir
@@ -248,7 +286,10 @@ RW-007,Fennel Run,2026-09-05,6.9,12.8,4.1,vol-12
     assert_eq!(v["intact"], true);
     assert_eq!(v["problems"], serde_json::json!([]));
     assert_eq!(v["checked"]["commits"], 2);
-    assert_eq!(v["checked"]["files"], 2, "the extract and the evidence file");
+    assert_eq!(
+        v["checked"]["files"], 2,
+        "the extract and the evidence file"
+    );
 }
 
 #[test]
@@ -260,16 +301,40 @@ fn keyless_and_composite_key_tables_name_rows() {
         "site,visit,flow\nA1,2026-01-01,1.5\nA1,2026-01-02,2.5\nB2,2026-01-01,3.5\n",
     );
     dir.write("gauge.csv", "stage,flow\n0.4,1\n0.5,2\n0.6,3\n");
-    dir.cmd(["ingest", "visits.csv", "--table", "visits", "--key", "site,visit"])
-        .ok();
+    dir.cmd([
+        "ingest",
+        "visits.csv",
+        "--table",
+        "visits",
+        "--key",
+        "site,visit",
+    ])
+    .ok();
     dir.cmd(["ingest", "gauge.csv", "--table", "gauge"])
         .ok()
         .says(&["rows named by position"]);
-    dir.cmd(["set", "visits", "A1,2026-01-02", "flow", "25", "--why", "logger says 25"])
+    dir.cmd([
+        "set",
+        "visits",
+        "A1,2026-01-02",
+        "flow",
+        "25",
+        "--why",
+        "logger says 25",
+    ])
+    .ok();
+    dir.cmd([
+        "set",
+        "gauge",
+        "2",
+        "flow",
+        "--missing",
+        "--why",
+        "sensor fouled",
+    ])
+    .ok();
+    dir.cmd(["exclude", "gauge", "3", "--why", "test reading"])
         .ok();
-    dir.cmd(["set", "gauge", "2", "flow", "--missing", "--why", "sensor fouled"])
-        .ok();
-    dir.cmd(["exclude", "gauge", "3", "--why", "test reading"]).ok();
     dir.cmd(["set", "gauge", "4", "flow", "9", "--why", "no such row"])
         .fails(&["no row '4'"]);
     dir.cmd(["commit", "-m", "two tables"]).ok();

@@ -1,0 +1,697 @@
+//! The auditor's commands: diff, why, tag, tags.
+
+use super::identity;
+use super::out::{self, BAD, BOLD, CHANGED, DIM, GOOD, paint};
+use anyhow::{Result, bail};
+use clap::Args;
+use emend::history::diff::{Diff, FixRef, Piece, diff, inline};
+use emend::history::why::{FixEvent, why_cell, why_column, why_row};
+use emend::history::{self, Rev};
+use emend::signing::fingerprint;
+use std::io::Write;
+
+#[derive(Args, Debug)]
+pub struct DiffArgs {
+    /// [TABLE] FROM TO: revisions (commit number, tag, 8+ hex digits, latest, raw); without
+    /// TABLE, every table
+    #[arg(num_args = 2..=3, required = true, value_names = ["TABLE", "FROM", "TO"])]
+    args: Vec<String>,
+    /// Comma-separated values, one line per change, for a spreadsheet
+    #[arg(long, conflicts_with_all = ["json", "stat"])]
+    csv: bool,
+    /// Counts per column instead of every cell
+    #[arg(long, conflicts_with = "json")]
+    stat: bool,
+    /// Print JSON (docs/json.md)
+    #[arg(long)]
+    json: bool,
+}
+
+#[derive(Args, Debug)]
+pub struct WhyArgs {
+    /// Table
+    table: String,
+    /// Row (key value, or 1-based position without a key); leave out with --col
+    row: Option<String>,
+    /// Column: with ROW, the life of one cell; alone, the column's history
+    column: Option<String>,
+    /// The column's history (distrust, recodes, missing codes)
+    #[arg(long = "col", value_name = "COLUMN", conflicts_with = "column")]
+    col: Option<String>,
+    /// Tell the story up to this revision (default latest)
+    #[arg(long, default_value = "latest", value_name = "REV")]
+    at: String,
+    /// Print JSON (docs/json.md)
+    #[arg(long)]
+    json: bool,
+}
+
+#[derive(Args, Debug)]
+pub struct TagArgs {
+    /// Tag name (a letter first; letters, digits, '_', '-', '.')
+    name: String,
+    /// The commit to name (default latest)
+    #[arg(default_value = "latest")]
+    rev: String,
+    /// What the tag marks
+    #[arg(short = 'm', long = "message")]
+    message: Option<String>,
+}
+
+fn fix_ref_json(f: &Option<FixRef>) -> serde_json::Value {
+    match f {
+        Some(f) => {
+            serde_json::json!({"seq": f.seq, "id": f.id.to_hex(), "kind": f.kind, "why": f.why})
+        }
+        None => serde_json::Value::Null,
+    }
+}
+
+fn diff_json(d: &Diff) -> serde_json::Value {
+    serde_json::json!({
+        "table": d.table,
+        "from_seq": d.from_seq,
+        "to_seq": d.to_seq,
+        "across_extracts": d.across_extracts,
+        "columns_added": d.columns_added,
+        "columns_removed": d.columns_removed,
+        "cells": d.cells.iter().map(|c| serde_json::json!({
+            "row": c.row.to_string(),
+            "old_row": c.old_row.as_ref().map(|r| r.to_string()),
+            "column": c.column,
+            "old": c.old,
+            "new": c.new,
+            "fix": fix_ref_json(&c.by),
+        })).collect::<Vec<_>>(),
+        "rows_added": d.rows_added.iter().map(|r| serde_json::json!({"row": r.row.to_string(), "cells": r.cells})).collect::<Vec<_>>(),
+        "rows_removed": d.rows_removed.iter().map(|r| serde_json::json!({"row": r.row.to_string(), "cells": r.cells})).collect::<Vec<_>>(),
+        "rows_excluded": d.rows_excluded.iter().map(|m| serde_json::json!({"row": m.target.replace('\u{1f}', ","), "excluded_in_to": m.set_in_to, "fix": fix_ref_json(&m.by)})).collect::<Vec<_>>(),
+        "columns_distrusted": d.columns_distrusted.iter().map(|m| serde_json::json!({"column": m.target, "distrusted_in_to": m.set_in_to, "fix": fix_ref_json(&m.by)})).collect::<Vec<_>>(),
+        "stat": d.stat().iter().map(|(c, n)| serde_json::json!({"column": c, "cells": n})).collect::<Vec<_>>(),
+        "index_rows_read": d.index_rows_read,
+    })
+}
+
+fn show_value(v: &Option<String>) -> String {
+    match v {
+        Some(s) => s.clone(),
+        None => "<missing>".into(),
+    }
+}
+
+/// old → new, with a word-level difference for long texts.
+fn change_text(old: &Option<String>, new: &Option<String>) -> String {
+    match (old, new) {
+        (Some(a), Some(b)) if a.chars().count() > 40 || b.chars().count() > 40 => {
+            let mut s = String::new();
+            for p in inline(a, b) {
+                match p {
+                    Piece::Same(t) => s.push_str(&t),
+                    Piece::Gone(t) => s.push_str(&paint(BAD, format!("‹was: {t}›"))),
+                    Piece::Came(t) => s.push_str(&paint(CHANGED, format!("‹now: {t}›"))),
+                }
+            }
+            s
+        }
+        _ => format!("{} → {}", show_value(old), show_value(new)),
+    }
+}
+
+fn csv_line(o: &mut dyn Write, fields: &[String]) -> Result<()> {
+    emend::ingest::csv::write_record(o, fields.iter().map(|f| f.as_bytes()), b',', false, false)?;
+    Ok(())
+}
+
+pub fn diff_cmd(a: DiffArgs) -> Result<i32> {
+    let store = super::open_store()?;
+    let reader = store.read();
+    let (tables, from, to) = match a.args.as_slice() {
+        [t, f, to] => (vec![t.clone()], f, to),
+        [f, to] => (reader.table_names()?, f, to),
+        _ => bail!("diff takes [TABLE] FROM TO"),
+    };
+    let from_rev = history::resolve(&reader, from)?;
+    let to_rev = history::resolve(&reader, to)?;
+    let mut diffs = Vec::new();
+    for t in &tables {
+        if reader
+            .extract_at(t, from_rev.seq.min(to_rev.seq))?
+            .is_none()
+            && tables.len() > 1
+        {
+            continue;
+        }
+        diffs.push(diff(&reader, t, from_rev, to_rev)?);
+    }
+    if a.json {
+        out::json(
+            &serde_json::json!({"from": from, "to": to, "tables": diffs.iter().map(diff_json).collect::<Vec<_>>()}),
+        )?;
+        return Ok(0);
+    }
+    let mut o = out::stdout();
+    if a.csv {
+        csv_line(
+            &mut o,
+            &[
+                "table",
+                "change",
+                "row",
+                "old_row",
+                "column",
+                "old",
+                "new",
+                "commit",
+                "commit_id",
+                "fix",
+                "why",
+            ]
+            .map(String::from),
+        )?;
+        for d in &diffs {
+            let fix = |f: &Option<FixRef>| match f {
+                Some(f) => [
+                    f.seq.to_string(),
+                    f.id.to_hex(),
+                    f.kind.clone(),
+                    f.why.clone(),
+                ],
+                None => Default::default(),
+            };
+            for c in &d.cells {
+                let [s, id, k, w] = fix(&c.by);
+                csv_line(
+                    &mut o,
+                    &[
+                        d.table.clone(),
+                        "cell".into(),
+                        c.row.to_string(),
+                        c.old_row
+                            .as_ref()
+                            .map(|r| r.to_string())
+                            .unwrap_or_default(),
+                        c.column.clone(),
+                        c.old.clone().unwrap_or_default(),
+                        c.new.clone().unwrap_or_default(),
+                        s,
+                        id,
+                        k,
+                        w,
+                    ],
+                )?;
+            }
+            for r in &d.rows_added {
+                csv_line(
+                    &mut o,
+                    &[
+                        d.table.clone(),
+                        "row added".into(),
+                        r.row.to_string(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                    ],
+                )?;
+            }
+            for r in &d.rows_removed {
+                csv_line(
+                    &mut o,
+                    &[
+                        d.table.clone(),
+                        "row removed".into(),
+                        r.row.to_string(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                    ],
+                )?;
+            }
+            for m in &d.rows_excluded {
+                let [s, id, k, w] = fix(&m.by);
+                let change = if m.set_in_to {
+                    "row excluded"
+                } else {
+                    "row no longer excluded"
+                };
+                csv_line(
+                    &mut o,
+                    &[
+                        d.table.clone(),
+                        change.into(),
+                        m.target.replace('\u{1f}', ","),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        s,
+                        id,
+                        k,
+                        w,
+                    ],
+                )?;
+            }
+            for m in &d.columns_distrusted {
+                let [s, id, k, w] = fix(&m.by);
+                let change = if m.set_in_to {
+                    "column distrusted"
+                } else {
+                    "column no longer distrusted"
+                };
+                csv_line(
+                    &mut o,
+                    &[
+                        d.table.clone(),
+                        change.into(),
+                        String::new(),
+                        String::new(),
+                        m.target.clone(),
+                        String::new(),
+                        String::new(),
+                        s,
+                        id,
+                        k,
+                        w,
+                    ],
+                )?;
+            }
+            for c in &d.columns_added {
+                csv_line(
+                    &mut o,
+                    &[
+                        d.table.clone(),
+                        "column added".into(),
+                        String::new(),
+                        String::new(),
+                        c.clone(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                    ],
+                )?;
+            }
+            for c in &d.columns_removed {
+                csv_line(
+                    &mut o,
+                    &[
+                        d.table.clone(),
+                        "column removed".into(),
+                        String::new(),
+                        String::new(),
+                        c.clone(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                        String::new(),
+                    ],
+                )?;
+            }
+        }
+        return Ok(0);
+    }
+    let label = |r: &Rev, s: u64| {
+        if r.raw {
+            format!("raw (commit {s})")
+        } else {
+            format!("commit {s}")
+        }
+    };
+    for d in &diffs {
+        writeln!(
+            o,
+            "{}: {} → {}{} — {} cells changed, {} rows added, {} rows removed, {} exclusions, {} distrusted columns",
+            paint(BOLD, &d.table),
+            label(&from_rev, d.from_seq),
+            label(&to_rev, d.to_seq),
+            if d.across_extracts {
+                " (across extracts)"
+            } else {
+                ""
+            },
+            d.cells.len(),
+            d.rows_added.len(),
+            d.rows_removed.len(),
+            d.rows_excluded.len(),
+            d.columns_distrusted.len()
+        )?;
+        if a.stat {
+            for (c, n) in d.stat() {
+                writeln!(o, "  {c:24} {n:>8} cells")?;
+            }
+            continue;
+        }
+        for c in &d.columns_added {
+            writeln!(o, "  column added: {c}")?;
+        }
+        for c in &d.columns_removed {
+            writeln!(o, "  column removed: {c}")?;
+        }
+        if !d.cells.is_empty() {
+            let header: Vec<String> = ["row", "column", "change", "commit", "why"]
+                .iter()
+                .map(|s| s.to_string())
+                .collect();
+            let rows: Vec<Vec<(String, Option<anstyle::Style>)>> = d
+                .cells
+                .iter()
+                .map(|c| {
+                    let row = match &c.old_row {
+                        Some(old) => format!("{} (was {old})", c.row),
+                        None => c.row.to_string(),
+                    };
+                    vec![
+                        (row, Some(BOLD)),
+                        (c.column.clone(), None),
+                        (change_text(&c.old, &c.new), None),
+                        (
+                            c.by.as_ref().map(|f| f.seq.to_string()).unwrap_or_default(),
+                            Some(DIM),
+                        ),
+                        (
+                            c.by.as_ref().map(|f| f.why.clone()).unwrap_or_default(),
+                            None,
+                        ),
+                    ]
+                })
+                .collect();
+            let text = out::table(&header, &rows, 200);
+            for line in text.lines() {
+                writeln!(o, "  {line}")?;
+            }
+        }
+        for r in &d.rows_added {
+            writeln!(
+                o,
+                "  {} row {}: {}",
+                paint(GOOD, "+"),
+                r.row,
+                r.cells
+                    .iter()
+                    .map(show_value)
+                    .collect::<Vec<_>>()
+                    .join(" | ")
+            )?;
+        }
+        for r in &d.rows_removed {
+            writeln!(
+                o,
+                "  {} row {}: {}",
+                paint(BAD, "-"),
+                r.row,
+                r.cells
+                    .iter()
+                    .map(show_value)
+                    .collect::<Vec<_>>()
+                    .join(" | ")
+            )?;
+        }
+        for m in &d.rows_excluded {
+            let what = if m.set_in_to {
+                "excluded"
+            } else {
+                "no longer excluded"
+            };
+            writeln!(
+                o,
+                "  row {} {what}{}",
+                m.target.replace('\u{1f}', ","),
+                m.by.as_ref()
+                    .map(|f| format!(" (commit {}: {})", f.seq, f.why))
+                    .unwrap_or_default()
+            )?;
+        }
+        for m in &d.columns_distrusted {
+            let what = if m.set_in_to {
+                "distrusted"
+            } else {
+                "no longer distrusted"
+            };
+            writeln!(
+                o,
+                "  column {} {what}{}",
+                m.target,
+                m.by.as_ref()
+                    .map(|f| format!(" (commit {}: {})", f.seq, f.why))
+                    .unwrap_or_default()
+            )?;
+        }
+        if d.is_empty() {
+            writeln!(o, "  no differences")?;
+        }
+    }
+    Ok(0)
+}
+
+fn event_json(e: &FixEvent) -> serde_json::Value {
+    serde_json::json!({
+        "seq": e.seq,
+        "id": e.id.to_hex(),
+        "author": {"name": e.author.name, "email": e.author.email, "fingerprint": fingerprint(&e.author.key)},
+        "time": e.time,
+        "message": e.message,
+        "kind": e.kind,
+        "description": e.description,
+        "column": e.column,
+        "why": e.why,
+        "consulted": e.consulted,
+        "evidence": e.evidence.iter().map(|v| serde_json::json!({"name": v.name, "blake3": v.blob.to_hex(), "bytes": v.n_bytes})).collect::<Vec<_>>(),
+        "old": e.old,
+        "new": e.new,
+        "signature_valid": e.signature_ok,
+        "signer_trusted": e.trusted,
+    })
+}
+
+fn print_event(o: &mut dyn Write, e: &FixEvent, with_change: bool) -> Result<()> {
+    let seal = match (e.signature_ok, e.trusted) {
+        (true, true) => paint(GOOD, "signature valid, trusted signer"),
+        (true, false) => paint(BAD, "signature valid, UNTRUSTED signer"),
+        (false, _) => paint(BAD, "SIGNATURE DOES NOT VERIFY"),
+    };
+    writeln!(
+        o,
+        "  {} {}  {}  {} {}",
+        paint(BOLD, format!("commit {}", e.seq)),
+        paint(DIM, e.id.short()),
+        e.time,
+        e.author.name,
+        paint(DIM, format!("({})", fingerprint(&e.author.key)))
+    )?;
+    if with_change {
+        let col = e
+            .column
+            .as_deref()
+            .map(|c| format!("{c}: "))
+            .unwrap_or_default();
+        writeln!(o, "    {} {col}{}", e.kind, change_text(&e.old, &e.new))?;
+    } else {
+        writeln!(o, "    {}", e.description)?;
+    }
+    writeln!(o, "    why: {}", e.why)?;
+    if let Some(c) = &e.consulted {
+        writeln!(o, "    consulted: {c}")?;
+    }
+    for v in &e.evidence {
+        writeln!(
+            o,
+            "    evidence: {} (blake3 {}, {} bytes)",
+            v.name,
+            v.blob.to_hex(),
+            v.n_bytes
+        )?;
+    }
+    writeln!(o, "    {seal}")?;
+    Ok(())
+}
+
+pub fn why_cmd(a: WhyArgs) -> Result<i32> {
+    let store = super::open_store()?;
+    let reader = store.read();
+    let rev = history::resolve(&reader, &a.at)?;
+    let mut o = out::stdout();
+    if let Some(col) = a.col.as_deref().filter(|_| a.row.is_none()) {
+        let (ingest_seq, list) = why_column(&reader, &a.table, col, rev)?;
+        if a.json {
+            out::json(
+                &serde_json::json!({"table": a.table, "column": col, "extract_commit": ingest_seq, "fixes": list.iter().map(|(e, n)| {
+                let mut v = event_json(e);
+                v.as_object_mut().expect("object").insert("cells_changed".into(), (*n).into());
+                v
+            }).collect::<Vec<_>>()}),
+            )?;
+            return Ok(0);
+        }
+        writeln!(
+            o,
+            "{} column {} since its extract (commit {ingest_seq})",
+            paint(BOLD, &a.table),
+            paint(BOLD, col)
+        )?;
+        if list.is_empty() {
+            writeln!(o, "  no distrust, recode or missing-code fix")?;
+        }
+        for (e, n) in &list {
+            print_event(&mut o, e, false)?;
+            writeln!(o, "    {n} cells changed")?;
+        }
+        return Ok(0);
+    }
+    let Some(row_text) = a.row.as_deref() else {
+        bail!("give ROW [COLUMN], or --col COLUMN");
+    };
+    let row = history::parse_row(&reader, &a.table, row_text)?;
+    let column = a.column.as_deref().or(a.col.as_deref());
+    let Some(column) = column else {
+        let (ingest_seq, list) = why_row(&reader, &a.table, &row, rev)?;
+        if a.json {
+            out::json(
+                &serde_json::json!({"table": a.table, "row": row.to_string(), "extract_commit": ingest_seq, "fixes": list.iter().map(event_json).collect::<Vec<_>>()}),
+            )?;
+            return Ok(0);
+        }
+        writeln!(
+            o,
+            "{} row {} since its extract (commit {ingest_seq})",
+            paint(BOLD, &a.table),
+            paint(BOLD, &row)
+        )?;
+        if list.is_empty() {
+            writeln!(o, "  no fix touched this row")?;
+        }
+        for e in &list {
+            print_event(&mut o, e, e.old.is_some() || e.new.is_some())?;
+        }
+        return Ok(0);
+    };
+    let story = why_cell(&reader, &a.table, &row, column, rev)?;
+    if a.json {
+        out::json(&serde_json::json!({
+            "table": story.table,
+            "row": story.row.to_string(),
+            "column": story.column,
+            "extract_commit": story.ingest_seq,
+            "extract_file": story.extract_file,
+            "raw": story.raw,
+            "fixes": story.events.iter().map(event_json).collect::<Vec<_>>(),
+            "at_seq": story.at_seq,
+            "value": story.value,
+            "row_excluded_by": story.row_excluded_by.as_ref().map(event_json),
+            "column_distrusted_by": story.column_distrusted_by.as_ref().map(event_json),
+        }))?;
+        return Ok(0);
+    }
+    writeln!(
+        o,
+        "{} row {} column {}",
+        paint(BOLD, &story.table),
+        paint(BOLD, &story.row),
+        paint(BOLD, &story.column)
+    )?;
+    writeln!(
+        o,
+        "  raw value {} (extract {}, commit {})",
+        paint(BOLD, show_value(&story.raw)),
+        story.extract_file,
+        story.ingest_seq
+    )?;
+    if story.events.is_empty() {
+        writeln!(o, "  no fix changed this cell")?;
+    }
+    for e in &story.events {
+        print_event(&mut o, e, true)?;
+    }
+    if let Some(e) = &story.row_excluded_by {
+        writeln!(o, "  the row is excluded:")?;
+        print_event(&mut o, e, false)?;
+    }
+    if let Some(e) = &story.column_distrusted_by {
+        writeln!(o, "  the column is distrusted:")?;
+        print_event(&mut o, e, false)?;
+    }
+    writeln!(
+        o,
+        "  value at commit {}: {}",
+        story.at_seq,
+        paint(BOLD, show_value(&story.value))
+    )?;
+    Ok(0)
+}
+
+pub fn tag_cmd(a: TagArgs) -> Result<i32> {
+    let mut store = super::open_store()?;
+    let id = identity::load()?;
+    let ctx = id.context(super::now()?);
+    let done = history::tag(
+        &mut store,
+        &a.name,
+        &a.rev,
+        a.message.as_deref().unwrap_or(""),
+        &ctx,
+    )?;
+    let target = match &done.body.change {
+        emend::model::Change::Tag(t) => t.target_seq,
+        _ => unreachable!("tag makes a tag commit"),
+    };
+    writeln!(
+        out::stdout(),
+        "{} {} names commit {} (signed as commit {} {})",
+        paint(GOOD, "tagged"),
+        paint(BOLD, &a.name),
+        target,
+        done.seq,
+        paint(DIM, done.id.short())
+    )?;
+    Ok(0)
+}
+
+pub fn tags_cmd(json: bool) -> Result<i32> {
+    let store = super::open_store()?;
+    let reader = store.read();
+    let mut items = Vec::new();
+    for (name, seq, target) in reader.tags()? {
+        let stored = reader
+            .try_commit(seq)?
+            .ok_or_else(|| anyhow::anyhow!("tag commit {seq} is missing"))?;
+        let body = history::decode(&stored)?;
+        items.push((name, seq, target, body));
+    }
+    if json {
+        out::json(
+            &serde_json::json!({"tags": items.iter().map(|(n, s, t, b)| serde_json::json!({
+            "name": n, "target_seq": t, "tag_seq": s, "message": b.message, "time": b.time,
+            "author": {"name": b.author.name, "fingerprint": fingerprint(&b.author.key)},
+        })).collect::<Vec<_>>()}),
+        )?;
+        return Ok(0);
+    }
+    let mut o = out::stdout();
+    if items.is_empty() {
+        writeln!(o, "no tags yet: emend tag NAME [REV] -m \"...\"")?;
+    }
+    for (n, s, t, b) in &items {
+        writeln!(
+            o,
+            "{}  commit {t}  {}  {}  {} {}",
+            paint(BOLD, n),
+            b.time,
+            b.author.name,
+            b.message,
+            paint(DIM, format!("(tag commit {s})"))
+        )?;
+    }
+    Ok(0)
+}
