@@ -7,3 +7,7 @@ mod rebuild;
 mod roundtrip;
 mod tamper;
 mod walkthrough;
+mod demo;
+mod identity;
+mod pipes;
+mod store;

@@ -305,13 +305,23 @@ fn cases() -> Vec<(&'static str, Tamper, Vec<String>)> {
         (
             "signatures of commits 2 and 3 swapped",
             |c| {
-                c.execute_batch(
-                    "UPDATE commit_log SET signature = CASE seq
-                        WHEN 2 THEN (SELECT signature FROM commit_log WHERE seq = 3)
-                        WHEN 3 THEN (SELECT signature FROM commit_log WHERE seq = 2)
-                        ELSE signature END",
-                )
-                .unwrap();
+                let sig = |seq: i64| -> Vec<u8> {
+                    c.query_row(
+                        "SELECT signature FROM commit_log WHERE seq = ?1",
+                        [seq],
+                        |r| r.get(0),
+                    )
+                    .unwrap()
+                };
+                let (s2, s3) = (sig(2), sig(3));
+                assert_ne!(s2, s3);
+                for (seq, s) in [(2, s3), (3, s2)] {
+                    c.execute(
+                        "UPDATE commit_log SET signature = ?1 WHERE seq = ?2",
+                        params![s, seq],
+                    )
+                    .unwrap();
+                }
             },
             vec!["commit 2".into(), "commit 3".into()],
         ),

@@ -1,0 +1,48 @@
+//! `emend demo DIR`: builds a store from the bundled (fictional) extract that verifies.
+
+use crate::util::TestDir;
+
+#[test]
+fn demo_builds_a_store_that_verifies() {
+    let dir = TestDir::new("demo");
+    let out = dir.cmd(["demo", "demo"]).ok();
+    let text = out.stdout();
+    assert!(text.contains("demo store built"), "{text}");
+    assert!(text.contains("2,000 rows"), "{text}");
+    assert!(dir.path("demo/.emend/store.sqlite").is_file());
+    // Run the next steps it suggests, from inside the demo folder.
+    let run = |args: &[&str]| dir.run(dir.command_in("demo", ".identity", args));
+    let v = run(&["verify", "--json"]).ok().json();
+    assert_eq!(v["intact"], true, "{v:#}");
+    assert_eq!(v["checked"]["commits"], 3);
+    let raw = run(&["export", "samples", "--at", "raw", "--raw"]).ok();
+    assert_eq!(raw.stdout_bytes(), &dir.read("demo/field_samples.csv")[..]);
+    let log = run(&["log", "--json"]).ok().json();
+    let commits = log["commits"].as_array().unwrap();
+    assert_eq!(commits.len(), 3);
+    assert!(commits.iter().all(|c| c["author"]["trusted"] == true));
+    // The lab-sheet evidence is attached to the pH fix.
+    let fixes = commits[2]["fixes"].as_array().unwrap();
+    let ph = fixes
+        .iter()
+        .find(|f| f["row"] == "S-00412")
+        .expect("the S-00412 fix");
+    assert_eq!(ph["value"], "7.1");
+    assert_eq!(ph["evidence"][0]["name"], "lab_sheet_S-00412.txt");
+    let show = run(&["show", "samples", "--rows", "412", "--cols", "sample_id,ph", "--json"])
+        .ok()
+        .json();
+    assert_eq!(show["rows"][0]["cells"], serde_json::json!(["S-00412", "7.1"]));
+}
+
+#[test]
+fn demo_refuses_a_folder_that_is_not_empty() {
+    let dir = TestDir::new("demo_busy");
+    dir.write("busy/notes.txt", "keep me\n");
+    dir.cmd(["demo", "busy"]).fails(&["is not empty"]);
+    assert_eq!(dir.read("busy/notes.txt"), b"keep me\n");
+    assert!(!dir.path("busy/.emend").exists());
+    // An empty existing folder is fine.
+    std::fs::create_dir(dir.path("empty")).unwrap();
+    dir.cmd(["demo", "empty"]).ok();
+}
