@@ -72,7 +72,7 @@ fn row(rng: &mut Rng, i: u64, demo: bool) -> Vec<String> {
     let mut turb_s = format!("{turb:.1}");
     let oxygen = rng.normal(9.0, 1.2);
     let mut weather =
-        WEATHER[rng.below(if day > 330 || day < 60 { 5 } else { 4 }) as usize].to_string();
+        WEATHER[rng.below(if (60..=330).contains(&day) { 4 } else { 5 }) as usize].to_string();
     let notes = NOTES[rng.below(NOTES.len() as u64) as usize].to_string();
     let roll = rng.below(1000);
     // Planted problems, at rates that stand out in a profile.

@@ -14,12 +14,12 @@ pub type Result<T, E = Error> = std::result::Result<T, E>;
 #[non_exhaustive]
 pub enum Error {
     /// A file could not be read or written.
-    #[error("{path}: {source}")]
+    #[error("{path}: {err}")]
     Io {
         /// The file involved.
         path: PathBuf,
-        /// The underlying error.
-        source: std::io::Error,
+        /// The underlying error (shown in the message, so not chained as a source).
+        err: std::io::Error,
     },
     /// An extract is malformed.
     #[error("{path}:{line}:{column}: {problem}")]
@@ -140,6 +140,9 @@ impl Error {
             Error::NothingPending => "record a fix first (set, recode, missing, exclude, distrust)".into(),
             Error::Busy => "wait for the other process to finish and try again".into(),
             Error::Corrupt(_) => "run 'emend verify' for a full list of problems".into(),
+            Error::BadExtract { .. } | Error::BadFile { .. } => {
+                "nothing was stored; fix the file (or give --delimiter / --encoding) and ingest again".into()
+            }
             _ => return None,
         })
     }
@@ -147,7 +150,7 @@ impl Error {
     pub(crate) fn io(path: impl Into<PathBuf>, source: std::io::Error) -> Self {
         Error::Io {
             path: path.into(),
-            source,
+            err: source,
         }
     }
 }

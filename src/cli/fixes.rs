@@ -53,8 +53,16 @@ pub struct MissingArgs {
     table: String,
     /// Column
     column: String,
-    /// A value that means "missing" in this column (e.g. -999); may be repeated
-    #[arg(long = "code", value_name = "VALUE", required = true, num_args = 1.., allow_hyphen_values = true)]
+    /// Values that mean "missing" in this column (e.g. --code -999 -99 N/A); a code that
+    /// starts with '-' but is not a number is written --code=-
+    #[arg(
+        long = "code",
+        value_name = "VALUE",
+        required = true,
+        num_args = 1..,
+        action = clap::ArgAction::Append,
+        allow_negative_numbers = true
+    )]
     codes: Vec<String>,
     #[command(flatten)]
     meta: FixMeta,
@@ -127,7 +135,7 @@ pub fn set(a: SetArgs) -> Result<i32> {
     )
 }
 
-fn read_map(path: &PathBuf) -> Result<Vec<(String, String)>> {
+fn read_map(path: &std::path::Path) -> Result<Vec<(String, String)>> {
     let file = emend::ingest::open_input(path)?;
     let mut reader = emend::ingest::csv::CsvReader::new(file, b',');
     let mut rec = emend::ingest::csv::RawRecord::default();

@@ -54,10 +54,13 @@ enum Command {
     /// Find what needs cleaning: types, missing codes, outliers, spellings, suspect columns
     Profile(profile::ProfileArgs),
     /// Set one cell to a value (or to missing)
+    #[command(allow_negative_numbers = true)]
     Set(fixes::SetArgs),
     /// Replace values across a column
+    #[command(allow_negative_numbers = true)]
     Recode(fixes::RecodeArgs),
     /// Declare missing-value codes for a column; matching cells become missing
+    #[command(allow_negative_numbers = true)]
     Missing(fixes::MissingArgs),
     /// Leave a row out of the cleaned data
     Exclude(fixes::ExcludeArgs),
@@ -145,7 +148,7 @@ fn is_broken_pipe(err: &anyhow::Error) -> bool {
             || e.downcast_ref::<serde_json::Error>()
                 .is_some_and(|j| j.io_error_kind() == Some(std::io::ErrorKind::BrokenPipe))
             || e.downcast_ref::<emend::Error>().is_some_and(|le| {
-                matches!(le, emend::Error::Io { source, .. } if source.kind() == std::io::ErrorKind::BrokenPipe)
+                matches!(le, emend::Error::Io { err, .. } if err.kind() == std::io::ErrorKind::BrokenPipe)
             })
     })
 }

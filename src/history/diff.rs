@@ -130,10 +130,24 @@ impl Diff {
     }
 }
 
+/// A commit's id and its fixes' (kind, reason).
+type CommitFixes = (CommitId, Vec<(String, String)>);
+
+/// Two versions of one row whose hashes differ: (row, old row, old cells, new cells, old
+/// excluded, new excluded).
+type RowPair = (
+    RowId,
+    Option<RowId>,
+    Vec<Option<String>>,
+    Vec<Option<String>>,
+    bool,
+    bool,
+);
+
 /// Reads fix reasons from commit bodies, decoding each commit once.
 struct FixLookup<'r, 'a> {
     reader: &'r Reader<'a>,
-    cache: HashMap<u64, Option<(CommitId, Vec<(String, String)>)>>,
+    cache: HashMap<u64, Option<CommitFixes>>,
 }
 
 impl<'r, 'a> FixLookup<'r, 'a> {
@@ -352,14 +366,7 @@ fn across_extracts(reader: &Reader<'_>, from: &Version, to: &Version) -> Result<
     let b = hasher();
     let keyed = !from.def.key.is_empty() && from.def.key == to.def.key;
     // (from cells, to cells, from excluded, to excluded) of row pairs whose hashes differ.
-    let mut pairs: Vec<(
-        RowId,
-        Option<RowId>,
-        Vec<Option<String>>,
-        Vec<Option<String>>,
-        bool,
-        bool,
-    )> = Vec::new();
+    let mut pairs: Vec<RowPair> = Vec::new();
     if keyed {
         let mut map: HashMap<String, (u64, bool)> = HashMap::new();
         from.for_each_row(reader, |r| {

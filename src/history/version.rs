@@ -23,6 +23,9 @@ pub struct RowView<'r> {
     pub excluded: bool,
 }
 
+/// A row found by id: (position, cells, excluded).
+pub type FoundRow = (u64, Vec<Option<String>>, bool);
+
 /// The state of one table at one commit.
 #[derive(Debug, Clone)]
 pub struct Version {
@@ -236,11 +239,7 @@ impl Version {
     }
 
     /// Find one row by id.
-    pub fn find_row(
-        &self,
-        reader: &Reader<'_>,
-        row: &RowId,
-    ) -> Result<Option<(u64, Vec<Option<String>>, bool)>> {
+    pub fn find_row(&self, reader: &Reader<'_>, row: &RowId) -> Result<Option<FoundRow>> {
         let mut found = None;
         self.for_each_row(reader, |r| {
             if r.id == row {

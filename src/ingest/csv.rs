@@ -287,11 +287,10 @@ impl<R: Read> CsvReader<R> {
                         if b == b'"' {
                             state = State::QuoteInQuoted;
                         } else {
-                            if b == b'\n' {
-                                self.line += 1;
-                            } else if b == b'\r'
-                                && !(self.pos < self.len && self.buf[self.pos] == b'\n')
-                            {
+                            // A line ends at LF, or at a CR not followed by LF.
+                            let cr_alone =
+                                b == b'\r' && !(self.pos < self.len && self.buf[self.pos] == b'\n');
+                            if b == b'\n' || cr_alone {
                                 self.line += 1;
                             }
                             rec.data.push(b);

@@ -388,15 +388,14 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
                 .filter(|w| w[0] == w[1])
                 .map(|w| w[0])
                 .collect();
-            if !dup.is_empty() {
-                if let Some(msg) =
+            if !dup.is_empty()
+                && let Some(msg) =
                     list_duplicates(path, delimiter, encoding, &key_idx, &header, &dup)?
-                {
-                    return Err(Error::BadFile {
-                        path: path.to_path_buf(),
-                        problem: msg,
-                    });
-                }
+            {
+                return Err(Error::BadFile {
+                    path: path.to_path_buf(),
+                    problem: msg,
+                });
             }
         }
         let dialect = Dialect {

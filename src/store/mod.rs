@@ -372,7 +372,7 @@ impl<'a> Reader<'a> {
             .conn
             .query_row(
                 "SELECT seq, id, body, signature FROM commit_log WHERE seq = ?1",
-                params![seq as i64],
+                params![sq(seq)],
                 stored_commit,
             )
             .optional()?)
@@ -414,7 +414,7 @@ impl<'a> Reader<'a> {
                 "SELECT seq, extract FROM extract_index WHERE tbl = ?1 AND seq <= ?2
                  ORDER BY seq DESC LIMIT 1",
             )?
-            .query_row(params![table, seq as i64], |r| {
+            .query_row(params![table, sq(seq)], |r| {
                 Ok((r.get::<_, i64>(0)? as u64, r.get::<_, [u8; 32]>(1)?))
             })
             .optional()?
@@ -443,7 +443,7 @@ impl<'a> Reader<'a> {
             "SELECT row_id, col, seq, fix_idx, old, new FROM cell_edit
              WHERE tbl = ?1 AND seq > ?2 AND seq <= ?3 ORDER BY seq, fix_idx",
         )?;
-        let rows = stmt.query_map(params![table, after as i64, upto as i64], |r| {
+        let rows = stmt.query_map(params![table, sq(after), sq(upto)], |r| {
             Ok(CellEditRow {
                 table: table.to_string(),
                 row: r.get(0)?,
@@ -463,7 +463,7 @@ impl<'a> Reader<'a> {
             "SELECT kind, target, seq, fix_idx FROM mark
              WHERE tbl = ?1 AND seq > ?2 AND seq <= ?3 ORDER BY seq, fix_idx",
         )?;
-        let rows = stmt.query_map(params![table, after as i64, upto as i64], |r| {
+        let rows = stmt.query_map(params![table, sq(after), sq(upto)], |r| {
             Ok(MarkRow {
                 table: table.to_string(),
                 kind: r.get(0)?,
@@ -583,10 +583,9 @@ impl<'a> Reader<'a> {
              WHERE tbl = ?1 AND row_id = ?2 AND col = ?3 AND seq > ?4 AND seq <= ?5
              ORDER BY seq, fix_idx",
         )?;
-        let rows = stmt.query_map(
-            params![table, row, column, after as i64, upto as i64],
-            |r| cell_edit_row(table, row, r),
-        )?;
+        let rows = stmt.query_map(params![table, row, column, sq(after), sq(upto)], |r| {
+            cell_edit_row(table, row, r)
+        })?;
         Ok(rows.collect::<rusqlite::Result<_>>()?)
     }
 
@@ -603,7 +602,7 @@ impl<'a> Reader<'a> {
              WHERE tbl = ?1 AND row_id = ?2 AND seq > ?3 AND seq <= ?4
              ORDER BY seq, fix_idx",
         )?;
-        let rows = stmt.query_map(params![table, row, after as i64, upto as i64], |r| {
+        let rows = stmt.query_map(params![table, row, sq(after), sq(upto)], |r| {
             cell_edit_row(table, row, r)
         })?;
         Ok(rows.collect::<rusqlite::Result<_>>()?)
@@ -623,18 +622,15 @@ impl<'a> Reader<'a> {
              WHERE tbl = ?1 AND kind = ?2 AND target = ?3 AND seq > ?4 AND seq <= ?5
              ORDER BY seq, fix_idx",
         )?;
-        let rows = stmt.query_map(
-            params![table, kind, target, after as i64, upto as i64],
-            |r| {
-                Ok(MarkRow {
-                    table: table.to_string(),
-                    kind: kind.to_string(),
-                    target: target.to_string(),
-                    seq: r.get::<_, i64>(0)? as u64,
-                    fix_idx: r.get::<_, i64>(1)? as u64,
-                })
-            },
-        )?;
+        let rows = stmt.query_map(params![table, kind, target, sq(after), sq(upto)], |r| {
+            Ok(MarkRow {
+                table: table.to_string(),
+                kind: kind.to_string(),
+                target: target.to_string(),
+                seq: r.get::<_, i64>(0)? as u64,
+                fix_idx: r.get::<_, i64>(1)? as u64,
+            })
+        })?;
         Ok(rows.collect::<rusqlite::Result<_>>()?)
     }
 
@@ -779,6 +775,12 @@ impl<'a> Reader<'a> {
             |r| r.get::<_, i64>(0),
         )? as u64)
     }
+}
+
+/// A sequence number as SQLite's signed integer; `u64::MAX` ("no upper bound") stays the
+/// largest value rather than wrapping to -1.
+fn sq(seq: u64) -> i64 {
+    seq.min(i64::MAX as u64) as i64
 }
 
 fn blob32(r: &rusqlite::Row<'_>, idx: usize) -> rusqlite::Result<[u8; 32]> {

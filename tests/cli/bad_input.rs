@@ -584,12 +584,12 @@ fn a_failed_ingest_leaves_no_chunks_behind() {
     assert_eq!(count(&dir, "chunk"), chunks);
 }
 
-// BUG (src/cli/fixes.rs, MissingArgs::codes): `--code` takes `num_args = 1..` with
+// Regression (found in review; src/cli/fixes.rs, MissingArgs::codes): `--code` takes `num_args = 1..` with
 // `allow_hyphen_values = true`, so in `emend missing T COL --code -999 --why R` the values of
 // --code swallow `--why R`, and clap then reports that --why is missing (exit 2). The order
 // the help and the design show (`missing T COL --code V... --why R`) must work.
 #[test]
-fn bug_missing_code_then_why_is_accepted() {
+fn issue_2_missing_code_then_why_is_accepted() {
     let dir = store();
     dir.write("temps.csv", "sample_id,temp\nRW-1,-999\nRW-2,12\n");
     dir.cmd(["discard"]).ok();
@@ -611,12 +611,12 @@ fn bug_missing_code_then_why_is_accepted() {
     assert_eq!(status["pending"][0]["why"], "no meter");
 }
 
-// BUG (src/error.rs, Error::Io): the variant's message is "{path}: {source}" and thiserror also
+// Regression (found in review; src/error.rs, Error::Io): the variant's message is "{path}: {source}" and thiserror also
 // reports `source` as the error's cause, so `{err:#}` prints the OS error twice: "emend: error:
 // ingesting nope.csv: nope.csv: No such file or directory (os error 2): No such file or
 // directory (os error 2)".
 #[test]
-fn bug_missing_file_error_names_the_os_error_once() {
+fn issue_2_missing_file_error_names_the_os_error_once() {
     let dir = store();
     let out = dir
         .cmd(["ingest", "nope.csv", "--table", "other"])

@@ -29,10 +29,21 @@ fn demo_builds_a_store_that_verifies() {
         .expect("the S-00412 fix");
     assert_eq!(ph["value"], "7.1");
     assert_eq!(ph["evidence"][0]["name"], "lab_sheet_S-00412.txt");
-    let show = run(&["show", "samples", "--rows", "412", "--cols", "sample_id,ph", "--json"])
-        .ok()
-        .json();
-    assert_eq!(show["rows"][0]["cells"], serde_json::json!(["S-00412", "7.1"]));
+    let show = run(&[
+        "show",
+        "samples",
+        "--rows",
+        "412",
+        "--cols",
+        "sample_id,ph",
+        "--json",
+    ])
+    .ok()
+    .json();
+    assert_eq!(
+        show["rows"][0]["cells"],
+        serde_json::json!(["S-00412", "7.1"])
+    );
 }
 
 #[test]

@@ -16,8 +16,15 @@ fn two_signers() -> TestDir {
     let dir = TestDir::new("two_signers");
     setup_store(&dir);
     dir.write("river.csv", RIVER_CSV);
-    dir.cmd(["ingest", "river.csv", "--table", "samples", "--key", "sample_id"])
-        .ok();
+    dir.cmd([
+        "ingest",
+        "river.csv",
+        "--table",
+        "samples",
+        "--key",
+        "sample_id",
+    ])
+    .ok();
     dir.cmd(["exclude", "samples", "RW-004", "--why", "duplicate"])
         .ok();
     dir.cmd(["commit", "-m", "by the steward"]).ok();
@@ -25,10 +32,19 @@ fn two_signers() -> TestDir {
         .ok();
     dir.cmd_as(
         "second",
-        ["set", "samples", "RW-002", "ph", "7.1", "--why", "lab sheet"],
+        [
+            "set",
+            "samples",
+            "RW-002",
+            "ph",
+            "7.1",
+            "--why",
+            "lab sheet",
+        ],
     )
     .ok();
-    dir.cmd_as("second", ["commit", "-m", "by the analyst"]).ok();
+    dir.cmd_as("second", ["commit", "-m", "by the analyst"])
+        .ok();
     dir.write("river2.csv", &RIVER_CSV.replace("71,", "7.1,"));
     dir.cmd_as("second", ["ingest", "river2.csv", "--table", "samples2"])
         .ok();
@@ -38,15 +54,31 @@ fn two_signers() -> TestDir {
 #[test]
 fn id_new_and_show() {
     let dir = TestDir::new("id");
-    dir.cmd(["id", "show"]).fails(&["no signing identity", "emend id new"]);
-    dir.cmd(["id", "new", "--name", "  "]).fails(&["--name is empty"]);
-    dir.cmd(["id", "new", "--name", "Test Steward", "--email", "t@example.org"])
-        .ok()
-        .says(&["made identity for Test Steward <t@example.org>", "key fingerprint"]);
+    dir.cmd(["id", "show"])
+        .fails(&["no signing identity", "emend id new"]);
+    dir.cmd(["id", "new", "--name", "  "])
+        .fails(&["--name is empty"]);
+    dir.cmd([
+        "id",
+        "new",
+        "--name",
+        "Test Steward",
+        "--email",
+        "t@example.org",
+    ])
+    .ok()
+    .says(&[
+        "made identity for Test Steward <t@example.org>",
+        "key fingerprint",
+    ]);
     let v = dir.cmd(["id", "show", "--json"]).ok().json();
     assert_eq!(v["name"], "Test Steward");
     assert_eq!(v["email"], "t@example.org");
-    assert_eq!(v["trusted_by_store"], serde_json::Value::Null, "no store here");
+    assert_eq!(
+        v["trusted_by_store"],
+        serde_json::Value::Null,
+        "no store here"
+    );
     let fp = v["fingerprint"].as_str().unwrap();
     assert_eq!(fp.len(), 19);
     // A second `id new` never replaces a key.
@@ -66,7 +98,10 @@ fn id_new_and_show() {
     let v = dir.cmd(["id", "show", "--json"]).ok().json();
     assert_eq!(v["trusted_by_store"], true);
     let text = dir.cmd(["id", "show"]).ok().stdout();
-    assert!(text.contains(fp) && text.contains("trusts this key"), "{text}");
+    assert!(
+        text.contains(fp) && text.contains("trusts this key"),
+        "{text}"
+    );
 }
 
 #[test]
@@ -120,7 +155,10 @@ fn commits_by_an_untrusted_key_fail_verify_until_trusted_by_a_key_file() {
     // An auditor's key file with both keys: everything checks out.
     dir.write(
         "auditor_keys.txt",
-        &format!("# keys the auditor trusts\n{first}  Test Steward\n\n{}\n", second.to_uppercase()),
+        &format!(
+            "# keys the auditor trusts\n{first}  Test Steward\n\n{}\n",
+            second.to_uppercase()
+        ),
     );
     let v = dir
         .cmd(["verify", "--json", "--trust", "auditor_keys.txt"])
@@ -169,10 +207,25 @@ fn a_commit_re_signed_by_a_key_added_to_the_store_is_caught_by_an_auditor_key_fi
     let dir = TestDir::new("resign");
     setup_store(&dir);
     dir.write("river.csv", RIVER_CSV);
-    dir.cmd(["ingest", "river.csv", "--table", "samples", "--key", "sample_id"])
-        .ok();
-    dir.cmd(["set", "samples", "RW-002", "ph", "7.1", "--why", "lab sheet"])
-        .ok();
+    dir.cmd([
+        "ingest",
+        "river.csv",
+        "--table",
+        "samples",
+        "--key",
+        "sample_id",
+    ])
+    .ok();
+    dir.cmd([
+        "set",
+        "samples",
+        "RW-002",
+        "ph",
+        "7.1",
+        "--why",
+        "lab sheet",
+    ])
+    .ok();
     dir.cmd(["commit", "-m", "fix"]).ok();
     let honest = public_key(&dir, HOME);
     dir.cmd_as("insider", ["id", "new", "--name", "Test Steward"])
@@ -189,7 +242,9 @@ fn a_commit_re_signed_by_a_key_added_to_the_store_is_caught_by_an_auditor_key_fi
         let c = open_db(&dir);
         c.execute_batch("DROP TRIGGER commit_no_update").unwrap();
         let mut body: Vec<u8> = c
-            .query_row("SELECT body FROM commit_log WHERE seq = 2", [], |r| r.get(0))
+            .query_row("SELECT body FROM commit_log WHERE seq = 2", [], |r| {
+                r.get(0)
+            })
             .unwrap();
         let honest_bytes: Vec<u8> = (0..32)
             .map(|i| u8::from_str_radix(&honest[2 * i..2 * i + 2], 16).unwrap())

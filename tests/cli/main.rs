@@ -2,12 +2,14 @@
 
 mod util;
 
+mod audit;
 mod bad_input;
-mod rebuild;
-mod roundtrip;
-mod tamper;
-mod walkthrough;
 mod demo;
 mod identity;
 mod pipes;
+mod profile;
+mod rebuild;
+mod roundtrip;
 mod store;
+mod tamper;
+mod walkthrough;

@@ -110,7 +110,10 @@ fn json_output_to_a_closed_pipe_is_not_an_error() {
     for args in JSON {
         let (code, err) = closed_pipe(&dir, args, 0);
         if code != Some(0) || err.to_lowercase().contains("error") {
-            failures.push(format!("`emend {}`: exit {code:?}, stderr {err:?}", args.join(" ")));
+            failures.push(format!(
+                "`emend {}`: exit {code:?}, stderr {err:?}",
+                args.join(" ")
+            ));
         }
     }
     assert!(failures.is_empty(), "{}", failures.join("\n"));
@@ -148,7 +151,10 @@ fn output_has_no_ansi_escapes_when_not_a_terminal() {
             }
             let out = dir.run(c);
             let what = format!("`emend {}` (NO_COLOR {no_color})", args.join(" "));
-            assert_no_ansi(&format!("stdout of {what}"), &String::from_utf8_lossy(out.stdout_bytes()));
+            assert_no_ansi(
+                &format!("stdout of {what}"),
+                &String::from_utf8_lossy(out.stdout_bytes()),
+            );
             assert_no_ansi(&format!("stderr of {what}"), &out.stderr());
         }
     }
@@ -156,5 +162,10 @@ fn output_has_no_ansi_escapes_when_not_a_terminal() {
     let mut c = dir.command(["show", "nope"]);
     c.env_remove("NO_COLOR");
     let out = dir.run(c).code(2);
-    assert!(out.stderr().starts_with("emend: error: no table named 'nope'\nhint: "), "{}", out.stderr());
+    assert!(
+        out.stderr()
+            .starts_with("emend: error: no table named 'nope'\nhint: "),
+        "{}",
+        out.stderr()
+    );
 }

