@@ -471,6 +471,7 @@ fn event_json(e: &FixEvent) -> serde_json::Value {
         "evidence": e.evidence.iter().map(|v| serde_json::json!({"name": v.name, "blake3": v.blob.to_hex(), "bytes": v.n_bytes})).collect::<Vec<_>>(),
         "old": e.old,
         "new": e.new,
+        "carried_from": e.origins.iter().map(|x| serde_json::json!({"seq": x.seq, "id": x.id.to_hex(), "fix_index": x.fix_idx})).collect::<Vec<_>>(),
         "signature_valid": e.signature_ok,
         "signer_trusted": e.trusted,
     })
@@ -502,6 +503,18 @@ fn print_event(o: &mut dyn Write, e: &FixEvent, with_change: bool) -> Result<()>
         writeln!(o, "    {}", e.description)?;
     }
     writeln!(o, "    why: {}", e.why)?;
+    if !e.origins.is_empty() {
+        let chain: Vec<String> = e
+            .origins
+            .iter()
+            .map(|x| format!("commit {}", x.seq))
+            .collect();
+        writeln!(
+            o,
+            "    carried from {} (the reason was given there)",
+            chain.join(" via ")
+        )?;
+    }
     if let Some(c) = &e.consulted {
         writeln!(o, "    consulted: {c}")?;
     }

@@ -226,6 +226,14 @@ pub fn print_fix(o: &mut dyn Write, fix: &Fix, indent: &str) -> Result<()> {
         fix.action.describe()
     )?;
     writeln!(o, "{indent}  why: {}", fix.why)?;
+    if !fix.origins.is_empty() {
+        let chain: Vec<String> = fix
+            .origins
+            .iter()
+            .map(|x| format!("commit {}", x.seq))
+            .collect();
+        writeln!(o, "{indent}  carried from {}", chain.join(" via "))?;
+    }
     if let Some(c) = &fix.consulted {
         writeln!(o, "{indent}  consulted: {c}")?;
     }
@@ -280,6 +288,16 @@ pub fn fix_json(fix: &Fix, added_at: Option<&str>) -> serde_json::Value {
         FixAction::Distrust { column } => {
             obj.insert("column".into(), column.clone().into());
         }
+    }
+    if !fix.origins.is_empty() {
+        obj.insert(
+            "carried_from".into(),
+            fix.origins
+                .iter()
+                .map(|o| serde_json::json!({"seq": o.seq, "id": o.id.to_hex(), "fix_index": o.fix_idx}))
+                .collect::<Vec<_>>()
+                .into(),
+        );
     }
     if let Some(t) = added_at {
         obj.insert("recorded_at".into(), t.into());

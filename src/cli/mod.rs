@@ -70,6 +70,8 @@ enum Command {
     Status(JsonFlag),
     /// Drop every pending fix
     Discard,
+    /// Replay the fixes made on a table's previous extract onto its newest one
+    Carry(record::CarryArgs),
     /// Sign and commit the pending fixes
     Commit(record::CommitArgs),
     /// List commits, newest last
@@ -169,6 +171,7 @@ fn run(cli: Cli) -> Result<i32> {
         Command::Distrust(a) => fixes::distrust(a),
         Command::Status(f) => record::status(f.json),
         Command::Discard => record::discard(),
+        Command::Carry(a) => record::carry(a),
         Command::Commit(a) => record::commit(a),
         Command::Log(a) => look::log(a),
         Command::Export(a) => look::export(a),

@@ -164,7 +164,13 @@ pub fn status(json: bool) -> Result<i32> {
     if json {
         let list: Vec<serde_json::Value> = pending
             .iter()
-            .map(|p| super::fixes::fix_json(&p.fix, Some(&p.added_at)))
+            .map(|p| {
+                let mut f = super::fixes::fix_json(&p.fix, Some(&p.added_at));
+                f.as_object_mut()
+                    .expect("object")
+                    .insert("note".into(), p.note.clone().into());
+                f
+            })
             .collect();
         out::json(&serde_json::json!({
             "head": head.map(|(s, id)| serde_json::json!({"seq": s, "id": id.to_hex()})),
@@ -188,6 +194,96 @@ pub fn status(json: bool) -> Result<i32> {
     )?;
     for p in &pending {
         super::fixes::print_fix(&mut o, &p.fix, "  ")?;
+        if let Some(note) = &p.note {
+            writeln!(o, "    {}", paint(DIM, note))?;
+        }
+    }
+    Ok(0)
+}
+
+#[derive(Args, Debug)]
+pub struct CarryArgs {
+    /// Table with a new extract
+    table: String,
+    /// Carry the fixes made up to this revision (default: the last commit before the newest
+    /// extract)
+    #[arg(long, value_name = "REV")]
+    from: Option<String>,
+    /// Print JSON (docs/json.md)
+    #[arg(long)]
+    json: bool,
+}
+
+pub fn carry(a: CarryArgs) -> Result<i32> {
+    use emend::history::carry::Outcome;
+    let mut store = super::open_store()?;
+    let now = super::now()?;
+    let list = history::carry::carry(&mut store, &a.table, a.from.as_deref(), &now)?;
+    if a.json {
+        let items: Vec<serde_json::Value> = list
+            .iter()
+            .map(|c| {
+                let mut f = super::fixes::fix_json(&c.fix, None);
+                let obj = f.as_object_mut().expect("object");
+                obj.insert("outcome".into(), c.outcome.label().into());
+                obj.insert("matches_now".into(), c.matches_now.into());
+                obj.insert("new_matches".into(), c.new_matches.into());
+                obj.insert(
+                    "cells".into(),
+                    c.cells
+                        .iter()
+                        .map(|x| serde_json::json!({"row": x.row.to_string(), "column": x.column, "was": x.was, "fixed": x.fixed, "now": x.now, "outcome": x.outcome.label()}))
+                        .collect::<Vec<_>>()
+                        .into(),
+                );
+                f
+            })
+            .collect();
+        out::json(&serde_json::json!({"table": a.table, "fixes": items}))?;
+        return Ok(0);
+    }
+    let mut o = out::stdout();
+    let staged = list
+        .iter()
+        .filter(|c| c.outcome == Outcome::Applied)
+        .count();
+    writeln!(
+        o,
+        "{} {staged} of {} fixes onto the newest extract of {} (pending; review with 'emend status', then 'emend commit -m ...')",
+        paint(GOOD, "carried"),
+        list.len(),
+        paint(BOLD, &a.table)
+    )?;
+    for c in &list {
+        let style = match c.outcome {
+            Outcome::Applied => GOOD,
+            Outcome::FixedAtSource => DIM,
+            _ => BAD,
+        };
+        writeln!(
+            o,
+            "  {} {} — {}",
+            paint(style, format!("[{}]", c.outcome.label())),
+            c.fix.action.describe(),
+            c.fix.why
+        )?;
+        writeln!(o, "      {}", paint(DIM, c.note()))?;
+        for x in c
+            .cells
+            .iter()
+            .filter(|x| x.outcome == Outcome::Conflict)
+            .take(20)
+        {
+            writeln!(
+                o,
+                "      conflict: row {} {}: the fix changed {} to {}, the new extract holds {}",
+                x.row,
+                x.column,
+                out::cell(&x.was),
+                out::cell(&x.fixed),
+                out::cell(&x.now)
+            )?;
+        }
     }
     Ok(0)
 }

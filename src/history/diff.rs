@@ -545,3 +545,62 @@ pub fn inline(old: &str, new: &str) -> Vec<Piece> {
     }
     out
 }
+
+/// Match the rows of two versions of a table without a key: old position → new position for
+/// every row the sequence alignment pairs (equal rows, and rows changed in place).
+pub fn align_positions(
+    reader: &Reader<'_>,
+    from: &Version,
+    to: &Version,
+) -> Result<HashMap<u64, u64>> {
+    let common: Vec<(usize, usize)> = to
+        .header()
+        .iter()
+        .enumerate()
+        .filter_map(|(ti, name)| {
+            from.header()
+                .iter()
+                .position(|h| h == name)
+                .map(|fi| (fi, ti))
+        })
+        .collect();
+    let from_cols: Vec<usize> = common.iter().map(|c| c.0).collect();
+    let to_cols: Vec<usize> = common.iter().map(|c| c.1).collect();
+    let b = hasher();
+    let mut old_h = Vec::new();
+    from.for_each_row(reader, |r| {
+        old_h.push(row_hash(&b, r.cells, &from_cols, false));
+        Ok(ControlFlow::Continue(()))
+    })?;
+    let mut new_h = Vec::new();
+    to.for_each_row(reader, |r| {
+        new_h.push(row_hash(&b, r.cells, &to_cols, false));
+        Ok(ControlFlow::Continue(()))
+    })?;
+    let mut map = HashMap::new();
+    for op in similar::capture_diff_slices(similar::Algorithm::Myers, &old_h, &new_h) {
+        match op {
+            similar::DiffOp::Equal {
+                old_index,
+                new_index,
+                len,
+            } => {
+                for k in 0..len {
+                    map.insert((old_index + k) as u64 + 1, (new_index + k) as u64 + 1);
+                }
+            }
+            similar::DiffOp::Replace {
+                old_index,
+                old_len,
+                new_index,
+                new_len,
+            } => {
+                for k in 0..old_len.min(new_len) {
+                    map.insert((old_index + k) as u64 + 1, (new_index + k) as u64 + 1);
+                }
+            }
+            _ => {}
+        }
+    }
+    Ok(map)
+}

@@ -5,6 +5,7 @@
 //! all. Signing takes a [`CommitContext`] handed in by the caller; this module never reads keys,
 //! the clock or the environment.
 
+pub mod carry;
 pub mod diff;
 pub mod export;
 pub mod profile;
@@ -431,8 +432,9 @@ pub fn record_fix(store: &mut Store, req: FixRequest, now: &str) -> Result<Recor
         why: req.why.trim().to_string(),
         evidence,
         consulted: req.consulted.filter(|c| !c.trim().is_empty()),
+        origins: Vec::new(),
     };
-    tx.add_pending(&fix, now)?;
+    tx.add_pending(&fix, None, now)?;
     tx.commit()?;
     Ok(Recorded { fix, note })
 }
@@ -463,7 +465,7 @@ pub fn store_file(tx: &WriteTx<'_>, path: &Path) -> Result<(BlobId, u64)> {
         n_bytes += filled as u64;
         let id = ChunkId(Digest::of(piece));
         let compressed = zstd::bulk::compress(piece, 1).map_err(|e| Error::io(path, e))?;
-        tx.put_chunk(&id, filled as u64, 1, &compressed)?;
+        tx.put_chunk(&id, filled as u64, 1, None, &compressed)?;
         chunks.push(id);
         if filled < buf.len() {
             break;

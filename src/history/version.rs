@@ -154,7 +154,12 @@ impl Version {
                     c.line,
                     c.problem
                 )),
-                ReadError::Io(io) => Error::Corrupt(format!("{}: {io}", place())),
+                // A damaged chunk arrives wrapped in an io error: hand the store's own error on.
+                ReadError::Io(io) => match io.into_inner().map(|inner| inner.downcast::<Error>()) {
+                    Some(Ok(e)) => *e,
+                    Some(Err(other)) => Error::Corrupt(format!("{}: {other}", place())),
+                    None => Error::Corrupt(format!("{} could not be read", place())),
+                },
             })
         };
         // The header was validated at ingest.

@@ -43,6 +43,8 @@ pub struct FixEvent {
     pub new: Option<String>,
     /// The column (row histories list several).
     pub column: Option<String>,
+    /// For a carried fix, the commits it came from, oldest first.
+    pub origins: Vec<crate::model::Origin>,
     /// The commit's signature verifies.
     pub signature_ok: bool,
     /// The signing key is one the store trusts.
@@ -114,6 +116,7 @@ impl Events<'_, '_> {
             old: None,
             new: None,
             column: rec.fix.action.column().map(str::to_string),
+            origins: rec.fix.origins,
             signature_ok,
         })
     }

@@ -12,12 +12,12 @@ use crate::error::{Error, Result};
 use crate::hash::{BlobId, ChunkId, Digest, VersionHash};
 use crate::history::version::VersionHashBuilder;
 use crate::model::{Dialect, IngestRecord, RowId, TextEncoding};
-use crate::store::WriteTx;
+use crate::store::{ChunkCache, Store, WriteTx};
 use csv::{CsvReader, RawRecord, ReadError};
 use std::fs::File;
 use std::hash::{BuildHasher, Hasher};
 use std::io::Read;
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use std::sync::mpsc;
 
 /// Size of a stored piece of an extract.
@@ -144,24 +144,95 @@ impl Read for Tee {
 struct Piece {
     id: ChunkId,
     raw_len: u64,
-    compressed: Vec<u8>,
+    codec: u8,
+    base: Option<(BlobId, u64, u64)>,
+    /// `None` when the store already holds this piece.
+    compressed: Option<Vec<u8>>,
 }
 
-fn compress_worker(rx: mpsc::Receiver<Vec<u8>>, tx: mpsc::Sender<std::io::Result<Piece>>) {
+/// The table's previous extract, against which new pieces are stored as deltas.
+#[derive(Clone)]
+struct Previous {
+    store: PathBuf,
+    extract: BlobId,
+    n_bytes: u64,
+}
+
+/// How far either side of a piece's own offset the reference range reaches into the previous
+/// extract: rows withdrawn or inserted between extracts shift later bytes by this much at most
+/// before a piece loses its match.
+const DELTA_MARGIN: u64 = 256 * 1024;
+
+fn compress_worker(
+    rx: mpsc::Receiver<Vec<u8>>,
+    tx: mpsc::Sender<Result<Piece>>,
+    previous: Option<Previous>,
+) {
+    let fail = |tx: &mpsc::Sender<Result<Piece>>, e: Error| {
+        let _ = tx.send(Err(e));
+    };
     let mut compressor = match zstd::bulk::Compressor::new(ZSTD_LEVEL) {
         Ok(c) => c,
-        Err(e) => {
-            let _ = tx.send(Err(e));
-            return;
-        }
+        Err(e) => return fail(&tx, Error::io("<compressor>", e)),
     };
+    // A second, read-only connection: the writer's transaction is open on the main thread, and
+    // WAL lets this one read the committed previous extract meanwhile.
+    let reference = match &previous {
+        Some(p) => match Store::open_read_only(&p.store) {
+            Ok(s) => Some((s, p.clone())),
+            Err(e) => return fail(&tx, e),
+        },
+        None => None,
+    };
+    let mut cache = ChunkCache::default();
+    let mut offset = 0u64;
     for piece in rx {
         let id = ChunkId(Digest::of(&piece));
-        let result = compressor.compress(&piece).map(|compressed| Piece {
-            id,
-            raw_len: piece.len() as u64,
-            compressed,
-        });
+        let raw_len = piece.len() as u64;
+        let start = offset;
+        offset += raw_len;
+        let result = (|| -> Result<Piece> {
+            let mut out = Piece {
+                id,
+                raw_len,
+                codec: 1,
+                base: None,
+                compressed: None,
+            };
+            let plain = |c: &mut zstd::bulk::Compressor<'_>| {
+                c.compress(&piece).map_err(|e| Error::io("<compressor>", e))
+            };
+            let Some((store, prev)) = &reference else {
+                out.compressed = Some(plain(&mut compressor)?);
+                return Ok(out);
+            };
+            let reader = store.read();
+            if reader.has_chunk(&id)? {
+                return Ok(out);
+            }
+            let lo = start.saturating_sub(DELTA_MARGIN).min(prev.n_bytes);
+            let hi = (start + raw_len + DELTA_MARGIN).min(prev.n_bytes);
+            if hi <= lo {
+                out.compressed = Some(plain(&mut compressor)?);
+                return Ok(out);
+            }
+            let prefix = reader.blob_range(&prev.extract, lo, hi, &mut cache)?;
+            let delta = crate::store::delta_compress(&piece, &prefix, ZSTD_LEVEL)
+                .map_err(|e| Error::io("<compressor>", e))?;
+            // A weak delta (an unrelated extract) is kept only if it still beats plain zstd,
+            // so unrelated files do not grow long reference chains.
+            if delta.len() as u64 > raw_len / 8 {
+                let p = plain(&mut compressor)?;
+                if p.len() <= delta.len() {
+                    out.compressed = Some(p);
+                    return Ok(out);
+                }
+            }
+            out.codec = 2;
+            out.base = Some((prev.extract, lo, hi));
+            out.compressed = Some(delta);
+            Ok(out)
+        })();
         if tx.send(result).is_err() {
             return;
         }
@@ -225,7 +296,22 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
 
     let (piece_tx, piece_rx) = mpsc::sync_channel::<Vec<u8>>(2);
     let (done_tx, done_rx) = mpsc::channel();
-    let worker = std::thread::spawn(move || compress_worker(piece_rx, done_tx));
+    let previous = tx
+        .read()
+        .extract_at(&opts.table, u64::MAX)?
+        .map(|(_, extract)| -> Result<Previous> {
+            let n_bytes = tx
+                .read()
+                .blobs_sized(&extract)?
+                .ok_or_else(|| Error::Corrupt(format!("stored file {extract} is missing")))?;
+            Ok(Previous {
+                store: tx.read().path().to_path_buf(),
+                extract,
+                n_bytes,
+            })
+        })
+        .transpose()?;
+    let worker = std::thread::spawn(move || compress_worker(piece_rx, done_tx, previous));
     let tee = Tee {
         file,
         hasher: blake3::Hasher::new(),
@@ -249,11 +335,13 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
                     Err(_) => return Ok(()),
                 }
             };
-            let piece = next.map_err(|e| Error::io(path, e))?;
-            if !tx.read().has_chunk(&piece.id)? {
-                *new_bytes += piece.compressed.len() as u64;
+            let piece = next?;
+            if let Some(data) = &piece.compressed
+                && !tx.read().has_chunk(&piece.id)?
+            {
+                *new_bytes += data.len() as u64;
+                tx.put_chunk(&piece.id, piece.raw_len, piece.codec, piece.base, data)?;
             }
-            tx.put_chunk(&piece.id, piece.raw_len, 1, &piece.compressed)?;
             chunks.push(piece.id);
         }
     };

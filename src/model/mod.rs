@@ -251,6 +251,20 @@ pub struct Fix {
     pub evidence: Vec<Evidence>,
     /// The expert consulted, if any.
     pub consulted: Option<String>,
+    /// For a fix carried forward from an earlier extract: the commits it came from, oldest
+    /// first (empty for a fix made directly).
+    pub origins: Vec<Origin>,
+}
+
+/// A commit a carried fix came from.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Origin {
+    /// The commit's sequence number.
+    pub seq: u64,
+    /// The commit's id.
+    pub id: CommitId,
+    /// The index of the fix within that commit.
+    pub fix_idx: u64,
 }
 
 /// One cell changed by a fix, with the value before and after. `None` is missing.
@@ -411,6 +425,7 @@ mod tests {
                     why: "lab sheet".into(),
                     evidence: vec![],
                     consulted: None,
+                    origins: vec![],
                 },
                 edits: vec![CellEdit {
                     row: RowId("S-1".into()),

@@ -1,14 +1,62 @@
-//! Streaming reads of stored files, one decompressed chunk in memory at a time.
+//! Streaming reads of stored files, one decompressed chunk at a time, and the small cache that
+//! keeps reads of delta chunks linear.
 
 use super::Reader;
-use crate::hash::ChunkId;
+use crate::hash::{BlobId, ChunkId};
+use std::collections::{HashMap, VecDeque};
 use std::io::Read;
+use std::rc::Rc;
 
-/// `Read` over a stored file's bytes. Memory: one chunk.
+/// A stored file's chunks with their offsets: (chunk, start, length).
+pub type Layout = Vec<(ChunkId, u64, u64)>;
+
+/// How many bytes of decompressed chunks a cache keeps.
+const CACHE_BYTES: usize = 48 << 20;
+
+/// Recently decompressed chunks and file layouts. A delta chunk needs a range of the previous
+/// extract, which may itself be stored as deltas; reading a file in order touches each layer's
+/// pieces a few times, so keeping the last few of each layer makes the cost linear. Memory is
+/// bounded by [`CACHE_BYTES`] (one piece more at most).
+#[derive(Default)]
+pub struct ChunkCache {
+    chunks: HashMap<ChunkId, Rc<Vec<u8>>>,
+    order: VecDeque<ChunkId>,
+    bytes: usize,
+    layouts: HashMap<BlobId, Rc<Layout>>,
+}
+
+impl ChunkCache {
+    pub(super) fn get(&mut self, id: &ChunkId) -> Option<Rc<Vec<u8>>> {
+        self.chunks.get(id).cloned()
+    }
+
+    pub(super) fn put(&mut self, id: ChunkId, bytes: Rc<Vec<u8>>) {
+        self.bytes += bytes.len();
+        self.chunks.insert(id, bytes);
+        self.order.push_back(id);
+        while self.bytes > CACHE_BYTES && self.order.len() > 1 {
+            let old = self.order.pop_front().expect("order is not empty");
+            if let Some(b) = self.chunks.remove(&old) {
+                self.bytes -= b.len();
+            }
+        }
+    }
+
+    pub(super) fn layout(&self, id: &BlobId) -> Option<Rc<Layout>> {
+        self.layouts.get(id).cloned()
+    }
+
+    pub(super) fn put_layout(&mut self, id: BlobId, layout: Rc<Layout>) {
+        self.layouts.insert(id, layout);
+    }
+}
+
+/// `Read` over a stored file's bytes. Memory: the chunk cache.
 pub struct BlobReader<'a> {
     reader: Reader<'a>,
     chunks: std::vec::IntoIter<ChunkId>,
-    buf: Vec<u8>,
+    cache: ChunkCache,
+    current: Rc<Vec<u8>>,
     pos: usize,
 }
 
@@ -17,26 +65,35 @@ impl<'a> BlobReader<'a> {
         BlobReader {
             reader,
             chunks: chunks.into_iter(),
-            buf: Vec::new(),
+            cache: ChunkCache::default(),
+            current: Rc::new(Vec::new()),
             pos: 0,
         }
+    }
+
+    /// The next whole chunk (id and bytes), for callers that check pieces one by one.
+    pub fn next_chunk(&mut self) -> crate::Result<Option<(ChunkId, Rc<Vec<u8>>)>> {
+        let Some(next) = self.chunks.next() else {
+            return Ok(None);
+        };
+        let bytes = self.reader.chunk_bytes(&next, &mut self.cache)?;
+        Ok(Some((next, bytes)))
     }
 }
 
 impl Read for BlobReader<'_> {
     fn read(&mut self, out: &mut [u8]) -> std::io::Result<usize> {
-        while self.pos >= self.buf.len() {
-            let Some(next) = self.chunks.next() else {
-                return Ok(0);
-            };
-            self.buf.clear();
-            self.pos = 0;
-            self.reader
-                .read_chunk(&next, &mut self.buf)
-                .map_err(std::io::Error::other)?;
+        while self.pos >= self.current.len() {
+            match self.next_chunk().map_err(std::io::Error::other)? {
+                Some((_, bytes)) => {
+                    self.current = bytes;
+                    self.pos = 0;
+                }
+                None => return Ok(0),
+            }
         }
-        let n = out.len().min(self.buf.len() - self.pos);
-        out[..n].copy_from_slice(&self.buf[self.pos..self.pos + n]);
+        let n = out.len().min(self.current.len() - self.pos);
+        out[..n].copy_from_slice(&self.current[self.pos..self.pos + n]);
         self.pos += n;
         Ok(n)
     }

@@ -6,13 +6,14 @@
 
 mod blob;
 
-pub use blob::BlobReader;
+pub use blob::{BlobReader, ChunkCache};
 
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, ChunkId, CommitId};
 use crate::model::{Change, CommitBody, Fix, RowId};
 use rusqlite::{Connection, OpenFlags, OptionalExtension, TransactionBehavior, params};
 use std::path::{Path, PathBuf};
+use std::rc::Rc;
 use std::time::Duration;
 
 /// The folder that holds a store, inside the project folder.
@@ -57,6 +58,8 @@ pub struct PendingFix {
     pub fix: Fix,
     /// When it was recorded.
     pub added_at: String,
+    /// A note for `status` (the outcome of a carried fix).
+    pub note: Option<String>,
 }
 
 /// A trusted signer.
@@ -282,6 +285,20 @@ impl Store {
             store.migrate(version)?;
         }
         Ok(store)
+    }
+
+    /// Open a store file for reading only, beside a writer (WAL lets both run at once).
+    pub fn open_read_only(path: &Path) -> Result<Store> {
+        let conn = Connection::open_with_flags(
+            path,
+            OpenFlags::SQLITE_OPEN_READ_ONLY | OpenFlags::SQLITE_OPEN_NO_MUTEX,
+        )
+        .map_err(|_| Error::NotAStore(path.to_path_buf()))?;
+        conn.busy_timeout(BUSY_WAIT)?;
+        Ok(Store {
+            conn,
+            path: path.to_path_buf(),
+        })
     }
 
     fn configure(conn: &Connection) -> Result<()> {
@@ -638,20 +655,26 @@ impl<'a> Reader<'a> {
     pub fn pending(&self) -> Result<Vec<PendingFix>> {
         let mut stmt = self
             .conn
-            .prepare("SELECT id, fix, added_at FROM pending ORDER BY id")?;
+            .prepare("SELECT id, fix, added_at, note FROM pending ORDER BY id")?;
         let rows = stmt.query_map([], |r| {
             Ok((
                 r.get::<_, i64>(0)?,
                 r.get::<_, Vec<u8>>(1)?,
                 r.get::<_, String>(2)?,
+                r.get::<_, Option<String>>(3)?,
             ))
         })?;
         let mut out = Vec::new();
         for row in rows {
-            let (id, bytes, added_at) = row?;
+            let (id, bytes, added_at, note) = row?;
             let fix: Fix = postcard::from_bytes(&bytes)
                 .map_err(|e| Error::Corrupt(format!("pending fix {id} does not decode: {e}")))?;
-            out.push(PendingFix { id, fix, added_at });
+            out.push(PendingFix {
+                id,
+                fix,
+                added_at,
+                note,
+            });
         }
         Ok(out)
     }
@@ -692,11 +715,26 @@ impl<'a> Reader<'a> {
             .is_some())
     }
 
-    /// Every blob: (id, size, chunk count).
+    /// The size of a stored file, if it is stored.
+    pub fn blobs_sized(&self, id: &BlobId) -> Result<Option<u64>> {
+        Ok(self
+            .conn
+            .prepare_cached("SELECT n_bytes FROM blob WHERE id = ?1")?
+            .query_row(params![id.as_bytes()], |r| r.get::<_, i64>(0))
+            .optional()?
+            .map(|n| n as u64))
+    }
+
+    /// The store file this reader reads.
+    pub fn path(&self) -> &Path {
+        Path::new(self.conn.path().unwrap_or(""))
+    }
+
+    /// Every blob: (id, size, chunk count), oldest first.
     pub fn blobs(&self) -> Result<Vec<(BlobId, u64, u64)>> {
         let mut stmt = self
             .conn
-            .prepare("SELECT id, n_bytes, n_chunks FROM blob ORDER BY id")?;
+            .prepare("SELECT id, n_bytes, n_chunks FROM blob ORDER BY rowid")?;
         let rows = stmt.query_map([], |r| {
             Ok((
                 BlobId::from_bytes(blob32(r, 0)?),
@@ -727,35 +765,154 @@ impl<'a> Reader<'a> {
 
     /// A chunk's uncompressed bytes, appended to `out`. Does not check the hash.
     pub fn read_chunk(&self, id: &ChunkId, out: &mut Vec<u8>) -> Result<()> {
-        let (raw_len, codec, data): (i64, i64, Vec<u8>) = self
+        let bytes = self.chunk_bytes(id, &mut ChunkCache::default())?;
+        out.extend_from_slice(&bytes);
+        Ok(())
+    }
+
+    /// A chunk's uncompressed bytes, through `cache`. Delta chunks rebuild their reference
+    /// bytes first (which may be deltas themselves); the cache keeps that linear when a file is
+    /// read in order.
+    pub fn chunk_bytes(&self, id: &ChunkId, cache: &mut ChunkCache) -> Result<Rc<Vec<u8>>> {
+        self.chunk_bytes_at(id, cache, 0)
+    }
+
+    fn chunk_bytes_at(
+        &self,
+        id: &ChunkId,
+        cache: &mut ChunkCache,
+        depth: usize,
+    ) -> Result<Rc<Vec<u8>>> {
+        if let Some(hit) = cache.get(id) {
+            return Ok(hit);
+        }
+        if depth > MAX_DELTA_DEPTH {
+            return Err(Error::Corrupt(format!(
+                "chunk {id} sits under more than {MAX_DELTA_DEPTH} delta layers (a reference loop?)"
+            )));
+        }
+        type ChunkRow = (i64, i64, Option<Vec<u8>>, Option<i64>, Option<i64>, Vec<u8>);
+        let (raw_len, codec, base_blob, base_lo, base_hi, data): ChunkRow = self
             .conn
-            .prepare_cached("SELECT raw_len, codec, data FROM chunk WHERE id = ?1")?
+            .prepare_cached(
+                "SELECT raw_len, codec, base_blob, base_lo, base_hi, data FROM chunk WHERE id = ?1",
+            )?
             .query_row(params![id.as_bytes()], |r| {
-                Ok((r.get(0)?, r.get(1)?, r.get(2)?))
+                Ok((
+                    r.get(0)?,
+                    r.get(1)?,
+                    r.get(2)?,
+                    r.get(3)?,
+                    r.get(4)?,
+                    r.get(5)?,
+                ))
             })
             .optional()?
             .ok_or_else(|| Error::Corrupt(format!("chunk {id} is missing")))?;
-        let start = out.len();
-        match codec {
-            0 => out.extend_from_slice(&data),
-            1 => {
-                let raw = zstd::bulk::decompress(&data, raw_len as usize)
-                    .map_err(|e| Error::Corrupt(format!("chunk {id} does not decompress: {e}")))?;
-                out.extend_from_slice(&raw);
+        let bad = |what: String| Error::Corrupt(format!("chunk {id} {what}"));
+        let raw = match codec {
+            0 => data,
+            1 => zstd::bulk::decompress(&data, raw_len.max(0) as usize)
+                .map_err(|e| bad(format!("does not decompress: {e}")))?,
+            2 => {
+                let (Some(base), Some(lo), Some(hi)) = (base_blob, base_lo, base_hi) else {
+                    return Err(bad("is a delta without a reference".into()));
+                };
+                let base: [u8; 32] = base
+                    .try_into()
+                    .map_err(|_| bad("names a reference that is not an id".into()))?;
+                if lo < 0 || hi < lo {
+                    return Err(bad(format!("has a reference range {lo}..{hi}")));
+                }
+                let prefix = self.blob_range_at(
+                    &BlobId::from_bytes(base),
+                    lo as u64,
+                    hi as u64,
+                    cache,
+                    depth + 1,
+                )?;
+                delta_decompress(&data, &prefix, raw_len.max(0) as usize)
+                    .map_err(|e| bad(format!("does not decompress against its reference: {e}")))?
             }
-            other => {
-                return Err(Error::Corrupt(format!(
-                    "chunk {id} has unknown codec {other}"
-                )));
-            }
-        }
-        if (out.len() - start) as i64 != raw_len {
-            return Err(Error::Corrupt(format!(
-                "chunk {id} holds {} bytes, its record says {raw_len}",
-                out.len() - start
+            other => return Err(bad(format!("has unknown codec {other}"))),
+        };
+        if raw.len() as i64 != raw_len {
+            return Err(bad(format!(
+                "holds {} bytes, its record says {raw_len}",
+                raw.len()
             )));
         }
-        Ok(())
+        let raw = Rc::new(raw);
+        cache.put(*id, raw.clone());
+        Ok(raw)
+    }
+
+    /// The chunks of a stored file with their offsets: (chunk, start, length), in order.
+    pub fn blob_layout(&self, id: &BlobId) -> Result<Vec<(ChunkId, u64, u64)>> {
+        let mut stmt = self.conn.prepare_cached(
+            "SELECT bc.chunk, c.raw_len FROM blob_chunk bc JOIN chunk c ON c.id = bc.chunk
+             WHERE bc.blob = ?1 ORDER BY bc.idx",
+        )?;
+        let rows = stmt.query_map(params![id.as_bytes()], |r| {
+            Ok((
+                ChunkId::from_bytes(blob32(r, 0)?),
+                r.get::<_, i64>(1)? as u64,
+            ))
+        })?;
+        let mut out = Vec::new();
+        let mut at = 0u64;
+        for row in rows {
+            let (chunk, len) = row?;
+            out.push((chunk, at, len));
+            at += len;
+        }
+        Ok(out)
+    }
+
+    /// Bytes `[lo, hi)` of a stored file.
+    pub fn blob_range(
+        &self,
+        id: &BlobId,
+        lo: u64,
+        hi: u64,
+        cache: &mut ChunkCache,
+    ) -> Result<Vec<u8>> {
+        self.blob_range_at(id, lo, hi, cache, 0)
+    }
+
+    fn blob_range_at(
+        &self,
+        id: &BlobId,
+        lo: u64,
+        hi: u64,
+        cache: &mut ChunkCache,
+        depth: usize,
+    ) -> Result<Vec<u8>> {
+        let layout = match cache.layout(id) {
+            Some(l) => l,
+            None => {
+                let l = Rc::new(self.blob_layout(id)?);
+                cache.put_layout(*id, l.clone());
+                l
+            }
+        };
+        let mut out = Vec::with_capacity((hi - lo) as usize);
+        for (chunk, start, len) in layout.iter() {
+            let end = start + len;
+            if end <= lo || *start >= hi {
+                continue;
+            }
+            let bytes = self.chunk_bytes_at(chunk, cache, depth)?;
+            let a = lo.max(*start) - start;
+            let b = hi.min(end) - start;
+            out.extend_from_slice(&bytes[a as usize..b as usize]);
+        }
+        if out.len() as u64 != hi - lo {
+            return Err(Error::Corrupt(format!(
+                "stored file {id} is shorter than the range {lo}..{hi} a delta refers to"
+            )));
+        }
+        Ok(out)
     }
 
     /// A reader over a stored blob's bytes.
@@ -775,6 +932,42 @@ impl<'a> Reader<'a> {
             |r| r.get::<_, i64>(0),
         )? as u64)
     }
+}
+
+/// The deepest chain of deltas a read follows before calling the store damaged.
+const MAX_DELTA_DEPTH: usize = 10_000;
+
+/// zstd parameters for delta pieces: a window that covers the reference and the piece.
+const DELTA_WINDOW_LOG: u32 = 24;
+
+/// Compress `data` against `prefix` (zstd reference prefix with long-distance matching).
+pub fn delta_compress(data: &[u8], prefix: &[u8], level: i32) -> std::io::Result<Vec<u8>> {
+    use zstd::zstd_safe::{CCtx, CParameter};
+    let err = |code: usize| std::io::Error::other(zstd::zstd_safe::get_error_name(code));
+    let mut cctx = CCtx::create();
+    cctx.set_parameter(CParameter::CompressionLevel(level))
+        .map_err(err)?;
+    cctx.set_parameter(CParameter::WindowLog(DELTA_WINDOW_LOG))
+        .map_err(err)?;
+    cctx.set_parameter(CParameter::EnableLongDistanceMatching(true))
+        .map_err(err)?;
+    cctx.ref_prefix(prefix).map_err(err)?;
+    let mut out = Vec::with_capacity(zstd::zstd_safe::compress_bound(data.len()));
+    cctx.compress2(&mut out, data).map_err(err)?;
+    Ok(out)
+}
+
+/// Undo [`delta_compress`].
+pub fn delta_decompress(frame: &[u8], prefix: &[u8], raw_len: usize) -> std::io::Result<Vec<u8>> {
+    use zstd::zstd_safe::{DCtx, DParameter};
+    let err = |code: usize| std::io::Error::other(zstd::zstd_safe::get_error_name(code));
+    let mut dctx = DCtx::create();
+    dctx.set_parameter(DParameter::WindowLogMax(DELTA_WINDOW_LOG + 1))
+        .map_err(err)?;
+    dctx.ref_prefix(prefix).map_err(err)?;
+    let mut out = Vec::with_capacity(raw_len);
+    dctx.decompress(&mut out, frame).map_err(err)?;
+    Ok(out)
 }
 
 /// A sequence number as SQLite's signed integer; `u64::MAX` ("no upper bound") stays the
@@ -831,13 +1024,30 @@ impl WriteTx<'_> {
         self.tx.commit().map_err(sql_err_busy)
     }
 
-    /// Store a chunk unless one with the same id is there.
-    pub fn put_chunk(&self, id: &ChunkId, raw_len: u64, codec: u8, data: &[u8]) -> Result<()> {
+    /// Store a chunk unless one with the same id is there. `base` is the reference of a
+    /// delta chunk (codec 2): a stored file and the byte range used as its prefix.
+    pub fn put_chunk(
+        &self,
+        id: &ChunkId,
+        raw_len: u64,
+        codec: u8,
+        base: Option<(BlobId, u64, u64)>,
+        data: &[u8],
+    ) -> Result<()> {
+        let (blob, lo, hi) = match &base {
+            Some((b, lo, hi)) => (
+                Some(b.as_bytes().to_vec()),
+                Some(*lo as i64),
+                Some(*hi as i64),
+            ),
+            None => (None, None, None),
+        };
         self.tx
             .prepare_cached(
-                "INSERT OR IGNORE INTO chunk (id, raw_len, codec, data) VALUES (?1, ?2, ?3, ?4)",
+                "INSERT OR IGNORE INTO chunk (id, raw_len, codec, base_blob, base_lo, base_hi, data)
+                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
             )?
-            .execute(params![id.as_bytes(), raw_len as i64, codec as i64, data])?;
+            .execute(params![id.as_bytes(), raw_len as i64, codec as i64, blob, lo, hi, data])?;
         Ok(())
     }
 
@@ -914,12 +1124,12 @@ impl WriteTx<'_> {
         Ok(())
     }
 
-    /// Record a fix as pending.
-    pub fn add_pending(&self, fix: &Fix, now: &str) -> Result<i64> {
+    /// Record a fix as pending, with an optional note for `status`.
+    pub fn add_pending(&self, fix: &Fix, note: Option<&str>, now: &str) -> Result<i64> {
         let bytes = postcard::to_stdvec(fix)?;
         self.tx.execute(
-            "INSERT INTO pending (tbl, fix, added_at) VALUES (?1, ?2, ?3)",
-            params![fix.table, bytes, now],
+            "INSERT INTO pending (tbl, fix, note, added_at) VALUES (?1, ?2, ?3, ?4)",
+            params![fix.table, bytes, note, now],
         )?;
         Ok(self.tx.last_insert_rowid())
     }

@@ -9,11 +9,18 @@ CREATE TABLE store_meta (
 ) STRICT;
 
 -- A compressed piece of a stored file, addressed by BLAKE3 of its uncompressed bytes.
+-- Codec 2 is a zstd frame compressed against a reference prefix: the bytes [base_lo, base_hi)
+-- of an earlier stored file (the previous extract of the same table), so a monthly extract
+-- that is mostly last month's costs little more than its changes.
 CREATE TABLE chunk (
-    id      BLOB PRIMARY KEY,
-    raw_len INTEGER NOT NULL,
-    codec   INTEGER NOT NULL,  -- 0 = stored, 1 = zstd
-    data    BLOB NOT NULL
+    id        BLOB PRIMARY KEY,
+    raw_len   INTEGER NOT NULL,
+    codec     INTEGER NOT NULL CHECK (codec IN (0, 1, 2)),  -- 0 stored, 1 zstd, 2 zstd delta
+    base_blob BLOB REFERENCES blob(id),
+    base_lo   INTEGER,
+    base_hi   INTEGER,
+    data      BLOB NOT NULL,
+    CHECK ((codec = 2) = (base_blob IS NOT NULL AND base_lo IS NOT NULL AND base_hi IS NOT NULL))
 ) STRICT;
 
 -- A stored file (an extract or an evidence file), addressed by BLAKE3 of its bytes.
@@ -53,6 +60,7 @@ CREATE TABLE pending (
     id       INTEGER PRIMARY KEY AUTOINCREMENT,
     tbl      TEXT NOT NULL,
     fix      BLOB NOT NULL,   -- postcard of model::Fix
+    note     TEXT,            -- e.g. the outcome of a carried fix
     added_at TEXT NOT NULL
 ) STRICT;
 

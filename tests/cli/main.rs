@@ -4,6 +4,7 @@ mod util;
 
 mod audit;
 mod bad_input;
+mod carry;
 mod demo;
 mod identity;
 mod pipes;

@@ -1,0 +1,343 @@
+//! Carrying the decisions made on one extract forward to the next.
+//!
+//! Each fix made on the previous extract is replayed against the newest one and gets an
+//! outcome: *applied* (the row is there and the cell still holds the value the fix replaced),
+//! *fixed at source* (the new extract already holds the fixed value), *conflict* (the source
+//! changed to something else: not applied, listed for a decision) or *row gone*. Value-level
+//! fixes (`recode`, `missing`) are re-evaluated on the new extract, so new rows with the same
+//! problem are fixed too. Applied fixes are staged as pending, each naming the commits it came
+//! from, so `why` can show the chain of origins.
+
+use super::version::Version;
+use super::{decode, resolve};
+use crate::error::{Error, Result};
+use crate::model::{Change, Fix, FixAction, Origin, RowId};
+use crate::store::Store;
+use std::collections::{HashMap, HashSet};
+use std::ops::ControlFlow;
+
+/// What happened to one carried fix (or one of its cells).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum Outcome {
+    /// Staged against the new extract.
+    Applied,
+    /// The new extract already holds the fixed value; nothing to do.
+    FixedAtSource,
+    /// The source value changed to something else: not applied, needs a decision.
+    Conflict,
+    /// The row is not in the new extract.
+    RowGone,
+    /// The column is not in the new extract.
+    ColumnGone,
+}
+
+impl Outcome {
+    /// Lowercase words for people.
+    pub fn label(&self) -> &'static str {
+        match self {
+            Outcome::Applied => "applied",
+            Outcome::FixedAtSource => "fixed at source",
+            Outcome::Conflict => "conflict",
+            Outcome::RowGone => "row gone",
+            Outcome::ColumnGone => "column gone",
+        }
+    }
+}
+
+/// One cell of a carried fix that needs a look (a conflict), or its outcome.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct CellOutcome {
+    /// Row.
+    pub row: RowId,
+    /// Column.
+    pub column: String,
+    /// The value the fix replaced on the previous extract.
+    pub was: Option<String>,
+    /// The value the fix set.
+    pub fixed: Option<String>,
+    /// The value in the new extract now.
+    pub now: Option<String>,
+    /// What happened.
+    pub outcome: Outcome,
+}
+
+/// One fix carried (or not) to the new extract.
+#[derive(Debug, Clone)]
+pub struct Carried {
+    /// The fix as staged (with its origins).
+    pub fix: Fix,
+    /// The fix's overall outcome.
+    pub outcome: Outcome,
+    /// Per-cell outcomes for the cells it changed on the previous extract.
+    pub cells: Vec<CellOutcome>,
+    /// Cells a value-level fix matches in the new extract (new rows included).
+    pub matches_now: u64,
+    /// Of those, cells in rows the original fix did not touch (new rows, new misspellings).
+    pub new_matches: u64,
+}
+
+impl Carried {
+    /// Cells per outcome.
+    pub fn count(&self, o: Outcome) -> usize {
+        self.cells.iter().filter(|c| c.outcome == o).count()
+    }
+
+    /// One line for `status`.
+    pub fn note(&self) -> String {
+        let mut parts = vec![format!("carried: {}", self.outcome.label())];
+        for o in [
+            Outcome::Applied,
+            Outcome::FixedAtSource,
+            Outcome::Conflict,
+            Outcome::RowGone,
+        ] {
+            let n = self.count(o);
+            if n > 0 {
+                parts.push(format!("{n} cells {}", o.label()));
+            }
+        }
+        if matches!(
+            self.fix.action,
+            FixAction::Recode { .. } | FixAction::Missing { .. }
+        ) {
+            parts.push(format!(
+                "{} cells match now, {} of them new",
+                self.matches_now, self.new_matches
+            ));
+        }
+        parts.join("; ")
+    }
+}
+
+/// Replay the fixes made on `table`'s previous extract (up to `from`, default the last commit
+/// before the newest extract) against the newest extract, and stage the applicable ones.
+pub fn carry(
+    store: &mut Store,
+    table: &str,
+    from: Option<&str>,
+    now: &str,
+) -> Result<Vec<Carried>> {
+    let tx = store.transaction()?;
+    let reader = tx.read();
+    let head = reader.head()?.map(|(s, _)| s).unwrap_or(0);
+    let extracts = reader.extracts_of(table)?;
+    let Some(&(new_seq, _)) = extracts.last() else {
+        return Err(Error::UnknownTable(table.to_string()));
+    };
+    if extracts.len() < 2 {
+        return Err(Error::Invalid(format!(
+            "table '{table}' has only one extract; carry replays fixes onto a newer extract after 'emend ingest'"
+        )));
+    }
+    if reader.pending()?.iter().any(|p| p.fix.table == table) {
+        return Err(Error::Invalid(format!(
+            "table '{table}' has pending fixes; commit or discard them before carrying"
+        )));
+    }
+    let upto = match from {
+        Some(text) => {
+            let rev = resolve(&reader, text)?;
+            if rev.raw || rev.seq >= new_seq {
+                return Err(Error::Invalid(format!(
+                    "--from must name a commit before the newest extract (commit {new_seq})"
+                )));
+            }
+            rev.seq
+        }
+        None => new_seq - 1,
+    };
+    let (prev_seq, _) = reader.extract_at(table, upto)?.ok_or_else(|| {
+        Error::Invalid(format!("table '{table}' had no extract at commit {upto}"))
+    })?;
+
+    // The fixes to carry, in order, with where they came from.
+    let mut fixes: Vec<(Fix, Vec<crate::model::CellEdit>)> = Vec::new();
+    for seq in prev_seq + 1..=upto {
+        let Some(stored) = reader.try_commit(seq)? else {
+            continue;
+        };
+        if let Change::Fixes(list) = decode(&stored)?.change {
+            for (i, r) in list.into_iter().enumerate() {
+                if r.fix.table != table {
+                    continue;
+                }
+                let mut fix = r.fix;
+                fix.origins.push(Origin {
+                    seq,
+                    id: stored.id,
+                    fix_idx: i as u64,
+                });
+                fixes.push((fix, r.edits));
+            }
+        }
+    }
+
+    let new_version = Version::load(&reader, table, head, false)?;
+    let keyless = new_version.def.key.is_empty();
+    // For tables without a key, old positions map to new ones through the row alignment.
+    let position_map = if keyless {
+        let old_raw = Version::load(&reader, table, prev_seq, true)?;
+        let new_raw = Version::load(&reader, table, new_seq, true)?;
+        Some(super::diff::align_positions(&reader, &old_raw, &new_raw)?)
+    } else {
+        None
+    };
+    let map_row = |row: &RowId| -> Option<RowId> {
+        match &position_map {
+            None => Some(row.clone()),
+            Some(m) => row
+                .as_str()
+                .parse::<u64>()
+                .ok()
+                .and_then(|p| m.get(&p))
+                .map(|p| RowId::from_position(*p)),
+        }
+    };
+
+    // One pass over the new version: the cells every fix needs, and value-level matches.
+    let mut wanted: HashSet<String> = HashSet::new();
+    for (fix, edits) in &fixes {
+        for e in edits {
+            if let Some(r) = map_row(&e.row) {
+                wanted.insert(r.0);
+            }
+        }
+        if let FixAction::Exclude { row } | FixAction::Set { row, .. } = &fix.action
+            && let Some(r) = map_row(row)
+        {
+            wanted.insert(r.0);
+        }
+    }
+    let col_of = |c: &str| new_version.col_idx(c).ok();
+    let mut rows: HashMap<String, Vec<Option<String>>> = HashMap::new();
+    // Per value-level fix: (cells matching now, rows matching now).
+    let mut matches: Vec<(u64, HashSet<String>)> = vec![(0, HashSet::new()); fixes.len()];
+    new_version.for_each_row(&reader, |r| {
+        if wanted.contains(r.id.as_str()) {
+            rows.insert(r.id.0.clone(), r.cells.to_vec());
+        }
+        for (k, (fix, _)) in fixes.iter().enumerate() {
+            let hit = match &fix.action {
+                FixAction::Recode { column, pairs } => col_of(column).is_some_and(|c| {
+                    r.cells[c]
+                        .as_deref()
+                        .is_some_and(|v| pairs.iter().any(|(f, _)| f == v))
+                }),
+                FixAction::Missing { column, codes } => col_of(column).is_some_and(|c| {
+                    r.cells[c]
+                        .as_deref()
+                        .is_some_and(|v| codes.iter().any(|code| code == v))
+                }),
+                _ => false,
+            };
+            if hit {
+                matches[k].0 += 1;
+                matches[k].1.insert(r.id.0.clone());
+            }
+        }
+        Ok(ControlFlow::Continue(()))
+    })?;
+
+    let mut out = Vec::new();
+    for (k, (mut fix, edits)) in fixes.into_iter().enumerate() {
+        if let Some(col) = fix.action.column()
+            && col_of(col).is_none()
+        {
+            out.push(Carried {
+                fix,
+                outcome: Outcome::ColumnGone,
+                cells: Vec::new(),
+                matches_now: 0,
+                new_matches: 0,
+            });
+            continue;
+        }
+        let mut cells = Vec::new();
+        let mut touched: HashSet<String> = HashSet::new();
+        for e in &edits {
+            let mapped = map_row(&e.row);
+            let now = mapped
+                .as_ref()
+                .and_then(|r| rows.get(r.as_str()))
+                .and_then(|cells| col_of(&e.column).map(|c| cells[c].clone()));
+            let outcome = match (&mapped, &now) {
+                (None, _) | (_, None) => Outcome::RowGone,
+                (Some(_), Some(v)) if *v == e.new => Outcome::FixedAtSource,
+                (Some(_), Some(v)) if *v == e.old => Outcome::Applied,
+                _ => Outcome::Conflict,
+            };
+            if let Some(r) = &mapped {
+                touched.insert(r.0.clone());
+            }
+            cells.push(CellOutcome {
+                row: mapped.unwrap_or_else(|| e.row.clone()),
+                column: e.column.clone(),
+                was: e.old.clone(),
+                fixed: e.new.clone(),
+                now: now.flatten(),
+                outcome,
+            });
+        }
+        let (matches_now, new_matches) = (
+            matches[k].0,
+            matches[k]
+                .1
+                .iter()
+                .filter(|r| !touched.contains(*r))
+                .count() as u64,
+        );
+        let outcome = match &mut fix.action {
+            FixAction::Set { row, .. } => match cells.first().map(|c| c.outcome) {
+                Some(o) => {
+                    if let Some(r) = map_row(row) {
+                        *row = r;
+                    }
+                    o
+                }
+                // A set that changed nothing on the previous extract: carry it if the row is there.
+                None => match map_row(row).filter(|r| rows.contains_key(r.as_str())) {
+                    Some(r) => {
+                        *row = r;
+                        Outcome::Applied
+                    }
+                    None => Outcome::RowGone,
+                },
+            },
+            FixAction::Exclude { row } => {
+                match map_row(row).filter(|r| rows.contains_key(r.as_str())) {
+                    Some(r) => {
+                        *row = r;
+                        Outcome::Applied
+                    }
+                    None => Outcome::RowGone,
+                }
+            }
+            FixAction::Recode { .. } | FixAction::Missing { .. } => {
+                if matches_now > 0 {
+                    Outcome::Applied
+                } else if cells.is_empty()
+                    || cells.iter().any(|c| c.outcome == Outcome::FixedAtSource)
+                {
+                    Outcome::FixedAtSource
+                } else {
+                    Outcome::RowGone
+                }
+            }
+            FixAction::Distrust { .. } => Outcome::Applied,
+        };
+        out.push(Carried {
+            fix,
+            outcome,
+            cells,
+            matches_now,
+            new_matches,
+        });
+    }
+    for c in &out {
+        if c.outcome == Outcome::Applied {
+            tx.add_pending(&c.fix, Some(&c.note()), now)?;
+        }
+    }
+    tx.commit()?;
+    Ok(out)
+}
