@@ -9,12 +9,14 @@
 //! commit, resolve revisions) and [`history::verify`].
 #![deny(missing_docs)]
 
+pub mod checks;
 pub mod error;
 pub mod hash;
 pub mod history;
 pub mod ingest;
 pub mod model;
 pub mod profile;
+pub mod report;
 pub mod signing;
 pub mod store;
 

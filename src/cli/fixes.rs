@@ -288,6 +288,16 @@ pub fn fix_json(fix: &Fix, added_at: Option<&str>) -> serde_json::Value {
         FixAction::Distrust { column } => {
             obj.insert("column".into(), column.clone().into());
         }
+        FixAction::Rules {
+            file_name,
+            blob,
+            n_bytes,
+        } => {
+            obj.insert(
+                "rules_file".into(),
+                serde_json::json!({"name": file_name, "blake3": blob.to_hex(), "bytes": n_bytes}),
+            );
+        }
     }
     if !fix.origins.is_empty() {
         obj.insert(

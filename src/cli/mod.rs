@@ -2,6 +2,7 @@
 //! output. The only code that prints, reads environment variables or uses clap and anyhow.
 
 mod audit;
+mod check;
 mod demo;
 mod fixes;
 mod identity;
@@ -66,6 +67,10 @@ enum Command {
     Exclude(fixes::ExcludeArgs),
     /// Mark a column as not to be trusted (export leaves it out)
     Distrust(fixes::DistrustArgs),
+    /// Adopt a rules file for a table (a signed commit with a reason)
+    Rules(check::RulesArgs),
+    /// Apply the rules in force to a version; exit 1 when an error-level rule is broken
+    Check(check::CheckArgs),
     /// List the fixes waiting to be committed
     Status(JsonFlag),
     /// Drop every pending fix
@@ -171,6 +176,8 @@ fn run(cli: Cli) -> Result<i32> {
         Command::Distrust(a) => fixes::distrust(a),
         Command::Status(f) => record::status(f.json),
         Command::Discard => record::discard(),
+        Command::Rules(a) => check::adopt(a),
+        Command::Check(a) => check::check(a),
         Command::Carry(a) => record::carry(a),
         Command::Commit(a) => record::commit(a),
         Command::Log(a) => look::log(a),

@@ -158,7 +158,8 @@ pub fn carry(
         };
         if let Change::Fixes(list) = decode(&stored)?.change {
             for (i, r) in list.into_iter().enumerate() {
-                if r.fix.table != table {
+                // Rules are not carried: they apply to every later version until replaced.
+                if r.fix.table != table || matches!(r.fix.action, FixAction::Rules { .. }) {
                     continue;
                 }
                 let mut fix = r.fix;
@@ -323,7 +324,7 @@ pub fn carry(
                     Outcome::RowGone
                 }
             }
-            FixAction::Distrust { .. } => Outcome::Applied,
+            FixAction::Distrust { .. } | FixAction::Rules { .. } => Outcome::Applied,
         };
         out.push(Carried {
             fix,

@@ -9,6 +9,7 @@ pub mod carry;
 pub mod diff;
 pub mod export;
 pub mod profile;
+pub mod rules;
 pub mod verify;
 pub mod version;
 pub mod why;
@@ -230,7 +231,7 @@ pub fn check_table_name(name: &str) -> Result<()> {
     }
 }
 
-fn seal(
+pub(crate) fn seal(
     tx: &WriteTx<'_>,
     ctx: &CommitContext<'_>,
     message: &str,
@@ -413,6 +414,11 @@ pub fn record_fix(store: &mut Store, req: FixRequest, now: &str) -> Result<Recor
             }
         }
         FixAction::Distrust { .. } => {}
+        FixAction::Rules { .. } => {
+            return Err(Error::Invalid(
+                "a rules file is adopted with 'emend rules TABLE FILE --why ...'".into(),
+            ));
+        }
     }
     let mut evidence = Vec::new();
     for path in &req.evidence {
@@ -565,7 +571,7 @@ fn resolve_fixes(
                         excluded = true;
                     }
                 }
-                FixAction::Distrust { .. } => {}
+                FixAction::Distrust { .. } | FixAction::Rules { .. } => {}
             }
         }
         hash.row(row.id, excluded, &cells);

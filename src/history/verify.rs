@@ -152,6 +152,16 @@ pub fn verify(
         }
         if let Change::Fixes(records) = &body.change {
             for r in records {
+                if let crate::model::FixAction::Rules {
+                    file_name, blob, ..
+                } = &r.fix.action
+                    && !reader.has_blob(blob)?
+                {
+                    report.problem(
+                        &name,
+                        format!("rules file '{file_name}' ({}) is not stored", blob.short()),
+                    );
+                }
                 for ev in &r.fix.evidence {
                     if !reader.has_blob(&ev.blob)? {
                         report.problem(

@@ -181,6 +181,15 @@ pub enum FixAction {
         /// Column name.
         column: String,
     },
+    /// Adopt a rules file (stored content-addressed) that `check` applies from this commit on.
+    Rules {
+        /// The file name as given (no folders).
+        file_name: String,
+        /// BLAKE3 of the file.
+        blob: BlobId,
+        /// Size in bytes.
+        n_bytes: u64,
+    },
 }
 
 impl FixAction {
@@ -192,6 +201,7 @@ impl FixAction {
             FixAction::Missing { .. } => "missing",
             FixAction::Exclude { .. } => "exclude",
             FixAction::Distrust { .. } => "distrust",
+            FixAction::Rules { .. } => "rules",
         }
     }
 
@@ -202,7 +212,7 @@ impl FixAction {
             | FixAction::Recode { column, .. }
             | FixAction::Missing { column, .. }
             | FixAction::Distrust { column } => Some(column),
-            FixAction::Exclude { .. } => None,
+            FixAction::Exclude { .. } | FixAction::Rules { .. } => None,
         }
     }
 
@@ -234,6 +244,11 @@ impl FixAction {
             }
             FixAction::Exclude { row } => format!("exclude row {row}"),
             FixAction::Distrust { column } => format!("distrust column {column}"),
+            FixAction::Rules {
+                file_name, blob, ..
+            } => {
+                format!("adopt rules file {file_name} ({})", blob.short())
+            }
         }
     }
 }

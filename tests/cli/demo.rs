@@ -14,15 +14,21 @@ fn demo_builds_a_store_that_verifies() {
     let run = |args: &[&str]| dir.run(dir.command_in("demo", ".identity", args));
     let v = run(&["verify", "--json"]).ok().json();
     assert_eq!(v["intact"], true, "{v:#}");
-    assert_eq!(v["checked"]["commits"], 3);
+    assert_eq!(
+        v["checked"]["commits"], 4,
+        "ingest, rules and two cleaning commits"
+    );
+    // The bundled rules: the raw extract breaks them, the cleaned version passes.
+    run(&["check", "samples", "--at", "raw"]).code(1);
+    run(&["check", "samples"]).ok().says(&["passes"]);
     let raw = run(&["export", "samples", "--at", "raw", "--raw"]).ok();
     assert_eq!(raw.stdout_bytes(), &dir.read("demo/field_samples.csv")[..]);
     let log = run(&["log", "--json"]).ok().json();
     let commits = log["commits"].as_array().unwrap();
-    assert_eq!(commits.len(), 3);
+    assert_eq!(commits.len(), 4);
     assert!(commits.iter().all(|c| c["author"]["trusted"] == true));
     // The lab-sheet evidence is attached to the pH fix.
-    let fixes = commits[2]["fixes"].as_array().unwrap();
+    let fixes = commits[3]["fixes"].as_array().unwrap();
     let ph = fixes
         .iter()
         .find(|f| f["row"] == "S-00412")

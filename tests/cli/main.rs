@@ -11,6 +11,7 @@ mod pipes;
 mod profile;
 mod rebuild;
 mod roundtrip;
+mod rules;
 mod store;
 mod tamper;
 mod walkthrough;

@@ -1,0 +1,187 @@
+//! `rules` (adopt a rules file, signed) and `check` (apply the rules in force to a version).
+
+use super::FixMeta;
+use super::identity;
+use super::out::{self, BAD, BOLD, DIM, GOOD, paint};
+use anyhow::Result;
+use clap::Args;
+use emend::checks::{CheckReport, Severity};
+use emend::history::{self, rules};
+use std::io::Write;
+use std::path::PathBuf;
+
+#[derive(Args, Debug)]
+pub struct RulesArgs {
+    /// Table
+    table: String,
+    /// The rules file (TOML; see docs/rules.md)
+    file: PathBuf,
+    #[command(flatten)]
+    meta: FixMeta,
+}
+
+#[derive(Args, Debug)]
+pub struct CheckArgs {
+    /// Table
+    table: String,
+    /// Revision: commit number, tag, 8+ hex digits, 'latest' (default) or 'raw'
+    #[arg(long, default_value = "latest", value_name = "REV")]
+    at: String,
+    /// Try a rules file that is not adopted yet instead of the rules in force
+    #[arg(long, value_name = "FILE")]
+    rules: Option<PathBuf>,
+    /// Print JSON (docs/json.md)
+    #[arg(long)]
+    json: bool,
+}
+
+pub fn adopt(a: RulesArgs) -> Result<i32> {
+    let mut store = super::open_store()?;
+    let id = identity::load()?;
+    let ctx = id.context(super::now()?);
+    let done = rules::adopt(
+        &mut store,
+        &a.table,
+        &a.file,
+        &a.meta.why,
+        &a.meta.evidence,
+        a.meta.consulted.clone(),
+        &ctx,
+    )?;
+    writeln!(
+        out::stdout(),
+        "{} {} for {} as commit {} {}; 'emend check {}' applies them",
+        paint(GOOD, "adopted"),
+        a.file.display(),
+        paint(BOLD, &a.table),
+        done.seq,
+        paint(DIM, done.id.short()),
+        a.table
+    )?;
+    Ok(0)
+}
+
+pub fn check(a: CheckArgs) -> Result<i32> {
+    let store = super::open_store()?;
+    let reader = store.read();
+    let rev = history::resolve(&reader, &a.at)?;
+    let version = history::version_at(&reader, &a.table, rev)?;
+    let (source, text) = match &a.rules {
+        Some(p) => (
+            format!("{} (not adopted)", p.display()),
+            rules::read_text(p)?,
+        ),
+        None => {
+            let upto = if rev.raw { version.seq } else { rev.seq };
+            match rules::rules_at(&reader, &a.table, upto)? {
+                Some((seq, name, text)) => (format!("{name} (adopted in commit {seq})"), text),
+                None => anyhow::bail!(
+                    "no rules adopted for '{}' by commit {upto}; adopt a file with 'emend rules {} FILE --why ...', or try one with --rules FILE",
+                    a.table,
+                    a.table
+                ),
+            }
+        }
+    };
+    let path = a.rules.clone().unwrap_or_else(|| PathBuf::from(&source));
+    let ruleset = rules::parse_for(&path, &text, version.header())?;
+    let report = rules::check_version(&reader, &version, &ruleset)?;
+    let label = if rev.raw {
+        "raw".to_string()
+    } else {
+        format!("commit {}", rev.seq)
+    };
+    if a.json {
+        let mut v = serde_json::to_value(&report)?;
+        let obj = v.as_object_mut().expect("object");
+        obj.insert("table".into(), a.table.clone().into());
+        obj.insert(
+            "revision".into(),
+            serde_json::json!({"seq": rev.seq, "raw": rev.raw}),
+        );
+        obj.insert("rules_source".into(), source.into());
+        obj.insert("passed".into(), report.passed().into());
+        out::json(&v)?;
+    } else {
+        print_report(&a.table, &label, &source, &report)?;
+    }
+    Ok(if report.passed() {
+        super::EXIT_OK
+    } else {
+        super::EXIT_FOUND
+    })
+}
+
+fn print_report(table: &str, label: &str, source: &str, report: &CheckReport) -> Result<()> {
+    let mut o = out::stdout();
+    let errors = report.count(Severity::Error);
+    let warnings = report.count(Severity::Warning);
+    let verdict = if report.passed() {
+        paint(GOOD, "passes")
+    } else {
+        paint(BAD, "FAILS")
+    };
+    writeln!(
+        o,
+        "{} at {label} {verdict} {source}: {} rows, {errors} error-level and {warnings} warning-level violations",
+        paint(BOLD, table),
+        report.n_rows
+    )?;
+    for r in &report.rules {
+        let sev = match r.severity {
+            Severity::Error => "error",
+            Severity::Warning => "warning",
+        };
+        let mark = if r.violations == 0 {
+            paint(GOOD, "ok     ")
+        } else if r.severity == Severity::Error {
+            paint(BAD, "broken ")
+        } else {
+            paint(BOLD, "warning")
+        };
+        writeln!(
+            o,
+            "  {mark} {} {} {}",
+            paint(BOLD, &r.id),
+            r.description,
+            paint(
+                DIM,
+                format!("({sev}, line {}, {} rows)", r.line, r.violations)
+            )
+        )?;
+        for v in r.examples.iter().take(5) {
+            writeln!(
+                o,
+                "          row {} (#{}) {}{}: {}",
+                v.row,
+                v.pos,
+                v.column.as_deref().unwrap_or(""),
+                v.value
+                    .as_deref()
+                    .map(|x| format!(" = '{x}'"))
+                    .unwrap_or_default(),
+                v.message
+            )?;
+        }
+        if r.violations > 5 {
+            writeln!(
+                o,
+                "          … {} more (--json lists up to {})",
+                r.violations - 5,
+                emend::checks::MAX_EXAMPLES
+            )?;
+        }
+    }
+    for f in &report.flags {
+        writeln!(
+            o,
+            "  {} column {}: {:?} ({:.1}% against a threshold of {:.1}%)",
+            paint(BOLD, "flag   "),
+            f.column,
+            f.kind,
+            f.share * 100.0,
+            f.threshold * 100.0
+        )?;
+    }
+    Ok(())
+}

@@ -1,0 +1,152 @@
+//! Rules files in history: adopting one is a signed commit with a reason, and `check` applies
+//! the rules in force at a revision (or a file not yet adopted) to that revision's version.
+
+use super::version::Version;
+use super::{CommitContext, CommitOutcome, decode, seal, store_file};
+use crate::checks::{CheckReport, Checker, RuleSet};
+use crate::error::{Error, Result};
+use crate::model::{Change, Evidence, Fix, FixAction, FixRecord};
+use crate::store::{Reader, Store};
+use std::io::Read;
+use std::ops::ControlFlow;
+use std::path::{Path, PathBuf};
+
+/// Parse a rules file and check it names only columns of `header`; errors name the file,
+/// line and key.
+pub fn parse_for(path: &Path, text: &str, header: &[String]) -> Result<RuleSet> {
+    let rules = RuleSet::parse(text).map_err(|e| Error::BadFile {
+        path: path.to_path_buf(),
+        problem: e.to_string(),
+    })?;
+    Checker::new(&rules, header).map_err(|e| Error::BadFile {
+        path: path.to_path_buf(),
+        problem: e.to_string(),
+    })?;
+    Ok(rules)
+}
+
+/// Read a rules file from disk as UTF-8 text.
+pub fn read_text(path: &Path) -> Result<String> {
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
+    String::from_utf8(bytes).map_err(|e| Error::BadFile {
+        path: path.to_path_buf(),
+        problem: format!(
+            "not UTF-8 text (byte offset {})",
+            e.utf8_error().valid_up_to()
+        ),
+    })
+}
+
+/// Adopt a rules file for a table: one signed commit. Nothing is committed when the file does
+/// not parse or names a column the table lacks.
+pub fn adopt(
+    store: &mut Store,
+    table: &str,
+    path: &Path,
+    why: &str,
+    evidence: &[PathBuf],
+    consulted: Option<String>,
+    ctx: &CommitContext<'_>,
+) -> Result<CommitOutcome> {
+    if why.trim().is_empty() {
+        return Err(Error::EmptyReason);
+    }
+    let text = read_text(path)?;
+    let tx = store.transaction()?;
+    let reader = tx.read();
+    let head = reader.head()?.map(|(s, _)| s).unwrap_or(0);
+    let version = Version::load(&reader, table, head, false)?;
+    parse_for(path, &text, version.header())?;
+    let (blob, n_bytes) = store_file(&tx, path)?;
+    let mut ev = Vec::new();
+    for p in evidence {
+        let (b, n) = store_file(&tx, p)?;
+        ev.push(Evidence {
+            name: file_name(p),
+            blob: b,
+            n_bytes: n,
+        });
+    }
+    let fix = Fix {
+        table: table.to_string(),
+        action: FixAction::Rules {
+            file_name: file_name(path),
+            blob,
+            n_bytes,
+        },
+        why: why.trim().to_string(),
+        evidence: ev,
+        consulted: consulted.filter(|c| !c.trim().is_empty()),
+        origins: Vec::new(),
+    };
+    let message = format!("rules for {table}: {}", why.trim());
+    let change = Change::Fixes(vec![FixRecord {
+        fix,
+        edits: Vec::new(),
+    }]);
+    let done = seal(&tx, ctx, &message, change, Vec::new())?;
+    tx.commit()?;
+    Ok(done)
+}
+
+fn file_name(p: &Path) -> String {
+    p.file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default()
+}
+
+/// The rules in force for `table` at commit `seq`: (the commit that adopted them, file name,
+/// text), or `None` when no rules were adopted by then.
+pub fn rules_at(
+    reader: &Reader<'_>,
+    table: &str,
+    seq: u64,
+) -> Result<Option<(u64, String, String)>> {
+    for s in (1..=seq).rev() {
+        let Some(stored) = reader.try_commit(s)? else {
+            continue;
+        };
+        if let Change::Fixes(list) = decode(&stored)?.change {
+            for r in list.into_iter().rev() {
+                if let (
+                    true,
+                    FixAction::Rules {
+                        file_name, blob, ..
+                    },
+                ) = (r.fix.table == table, r.fix.action)
+                {
+                    let mut text = String::new();
+                    reader
+                        .open_blob(&blob)?
+                        .read_to_string(&mut text)
+                        .map_err(|e| {
+                            Error::Corrupt(format!(
+                                "rules file {file_name} ({}) does not read: {e}",
+                                blob.short()
+                            ))
+                        })?;
+                    return Ok(Some((s, file_name, text)));
+                }
+            }
+        }
+    }
+    Ok(None)
+}
+
+/// Check a version against rules, streaming its rows (excluded rows left out).
+pub fn check_version(
+    reader: &Reader<'_>,
+    version: &Version,
+    rules: &RuleSet,
+) -> Result<CheckReport> {
+    let mut checker =
+        Checker::new(rules, version.header()).map_err(|e| Error::Invalid(e.to_string()))?;
+    version.for_each_row(reader, |row| {
+        if !row.excluded {
+            let cells: Vec<Option<&str>> = row.cells.iter().map(|c| c.as_deref()).collect();
+            checker.push_row(row.pos, &row.id.to_string(), &cells);
+        }
+        Ok(ControlFlow::Continue(()))
+    })?;
+    Ok(checker.finish())
+}
