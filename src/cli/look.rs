@@ -60,6 +60,15 @@ pub struct ExportArgs {
     /// Keep distrusted columns
     #[arg(long)]
     with_distrusted: bool,
+    /// Also write W3C CSVW metadata for the exported CSV to FILE (e.g. samples.csv-metadata.json)
+    #[arg(long, value_name = "FILE")]
+    codebook: Option<PathBuf>,
+    /// Also write W3C PROV-JSON lineage of the version to FILE
+    #[arg(long, value_name = "FILE")]
+    provenance: Option<PathBuf>,
+    /// Also write one CSV row per cell edit (row, column, old, new, fix, reason, ...) to FILE
+    #[arg(long, value_name = "FILE")]
+    decisions: Option<PathBuf>,
 }
 
 fn parse_rows(text: &str) -> Result<(u64, u64)> {
@@ -497,6 +506,7 @@ pub fn export(a: ExportArgs) -> Result<i32> {
             ))
         }
     };
+    let side_files = a.codebook.is_some() || a.provenance.is_some() || a.decisions.is_some();
     match &a.output {
         Some(path) => {
             let mut f = AtomicFile::create(path)?;
@@ -504,11 +514,111 @@ pub fn export(a: ExportArgs) -> Result<i32> {
             f.finish()?;
             writeln!(anstream::stderr(), "wrote {what} to {}", path.display())?;
         }
+        // With only side files asked for, the CSV itself is not printed.
+        None if side_files => {}
         None => {
             let stdout = std::io::stdout();
             let mut w = std::io::BufWriter::with_capacity(1 << 16, stdout.lock());
             run(&mut w)?;
         }
     }
+    let upto = if rev.raw { v.ingest_seq } else { rev.seq };
+    if let Some(path) = &a.codebook {
+        let csv_url = a
+            .output
+            .as_ref()
+            .and_then(|p| p.file_name())
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_else(|| format!("{}.csv", v.table));
+        let view = emend::history::report::codebook_view(&reader, &v, &csv_url, a.with_distrusted)?;
+        write_json_file(path, &emend::report::csvw_metadata(&view))?;
+        writeln!(
+            anstream::stderr(),
+            "wrote CSVW metadata for {csv_url} to {}",
+            path.display()
+        )?;
+    }
+    if let Some(path) = &a.provenance {
+        let view = emend::history::report::prov_view(&reader, &v.table, upto)?;
+        write_json_file(path, &emend::report::prov_json(&view))?;
+        writeln!(
+            anstream::stderr(),
+            "wrote PROV-JSON lineage ({} commits) to {}",
+            view.commits.len(),
+            path.display()
+        )?;
+    }
+    if let Some(path) = &a.decisions {
+        let rows = emend::history::report::decision_rows(&reader, &v.table, v.ingest_seq, upto)?;
+        let mut f = AtomicFile::create(path)?;
+        emend::report::write_decisions_csv(&rows, &mut f)?;
+        f.finish()?;
+        writeln!(
+            anstream::stderr(),
+            "wrote {} decisions to {}",
+            rows.len(),
+            path.display()
+        )?;
+    }
+    Ok(0)
+}
+
+fn write_json_file(path: &std::path::Path, value: &serde_json::Value) -> Result<()> {
+    let mut f = AtomicFile::create(path)?;
+    serde_json::to_writer_pretty(&mut f, value)?;
+    writeln!(f)?;
+    f.finish()
+}
+
+#[derive(Args, Debug)]
+pub struct ReportArgs {
+    /// Table
+    table: String,
+    /// Revision: commit number, tag, 8+ hex digits, 'latest' (default) or 'raw'
+    #[arg(long, default_value = "latest", value_name = "REV")]
+    at: String,
+    /// The HTML file to write (one self-contained file)
+    #[arg(
+        short = 'o',
+        long = "output",
+        value_name = "FILE.html",
+        required = true
+    )]
+    output: PathBuf,
+}
+
+pub fn report(a: ReportArgs) -> Result<i32> {
+    let store = super::open_store()?;
+    let reader = store.read();
+    let rev = history::resolve(&reader, &a.at)?;
+    history::version_at(&reader, &a.table, rev)?;
+    let started = std::time::Instant::now();
+    let verify = emend::history::verify::verify(
+        &reader,
+        &emend::history::verify::Trust::Store,
+        &mut |_| {},
+    )?;
+    let view =
+        emend::history::report::report_view(&reader, &a.table, rev, &verify, &super::now()?)?;
+    let mut f = AtomicFile::create(&a.output)?;
+    emend::report::render_html(&view, &mut f)?;
+    f.finish()?;
+    let size = std::fs::metadata(&a.output).map(|m| m.len()).unwrap_or(0);
+    writeln!(
+        out::stdout(),
+        "wrote the report of {} at {} to {} ({} bytes, {} commits, {} columns; store {}) in {:.2} s",
+        a.table,
+        view.version.label,
+        a.output.display(),
+        size,
+        view.commits.len(),
+        view.columns.len(),
+        if verify.is_clean() {
+            "intact"
+        } else {
+            "NOT INTACT"
+        },
+        started.elapsed().as_secs_f64()
+    )?;
     Ok(0)
 }

@@ -91,6 +91,8 @@ enum Command {
     Tags(JsonFlag),
     /// Write a table version as CSV (or the raw extract bytes)
     Export(look::ExportArgs),
+    /// Write one self-contained HTML report of a version for an auditor
+    Report(look::ReportArgs),
     /// Check every hash, signature, table version and index row
     Verify(trust::VerifyArgs),
     /// Build a store from bundled demo data and record a cleaning pass
@@ -187,6 +189,7 @@ fn run(cli: Cli) -> Result<i32> {
         Command::Tag(a) => audit::tag_cmd(a),
         Command::Tags(f) => audit::tags_cmd(f.json),
         Command::Verify(a) => trust::verify(a),
+        Command::Report(a) => look::report(a),
         Command::Demo(a) => demo::run(a),
     }
 }

@@ -9,6 +9,7 @@ pub mod carry;
 pub mod diff;
 pub mod export;
 pub mod profile;
+pub mod report;
 pub mod rules;
 pub mod verify;
 pub mod version;

@@ -10,6 +10,7 @@ mod identity;
 mod pipes;
 mod profile;
 mod rebuild;
+mod report;
 mod roundtrip;
 mod rules;
 mod store;

@@ -1,0 +1,543 @@
+//! Filling the report and export views from the store: the glue between history and the pure
+//! renderers in [`crate::report`].
+
+use super::profile::{declared_codes, profile_version};
+use super::verify::VerifyReport;
+use super::version::Version;
+use super::{Rev, decode, rules};
+use crate::error::Result;
+use crate::model::{Change, CommitBody, FixAction};
+use crate::profile::{ColumnProfile, InferredType, TableOptions};
+use crate::report::{
+    Bin, CellView, CodebookColumn, CodebookSource, CodebookView, ColumnStats, ColumnView,
+    CommitView, CsvwDatatype, DecisionRow, DialectView, EvidenceView, ExtractView, FixView,
+    LevelView, MarkView, NumericView, ProblemView, ProvCommit, ProvExtract, ProvSigner, ProvView,
+    ReportView, SignatureStatus, VerifyView, VersionView,
+};
+use crate::signing;
+use crate::store::{Reader, StoredCommit};
+use std::collections::{HashMap, HashSet};
+use std::ops::ControlFlow;
+
+/// How many changed cells of one fix the report lists (the count is always complete).
+pub const CELLS_LISTED: usize = 20;
+const HISTOGRAM_BINS: usize = 20;
+const OUTLIERS_LISTED: usize = 50;
+
+fn signature(
+    body: &CommitBody,
+    stored: &StoredCommit,
+    trusted: &HashSet<[u8; 32]>,
+) -> SignatureStatus {
+    if !signing::verify(&body.author.key, stored.id.as_bytes(), &stored.signature) {
+        SignatureStatus::Invalid
+    } else if trusted.contains(&body.author.key) {
+        SignatureStatus::Valid
+    } else {
+        SignatureStatus::ValidUntrusted
+    }
+}
+
+fn inferred_name(t: InferredType) -> String {
+    format!("{t:?}").to_lowercase()
+}
+
+/// The numbers of one numeric column of a version, for box plots and histograms.
+fn numeric_values(reader: &Reader<'_>, version: &Version, col: usize) -> Result<Vec<f64>> {
+    let mut values = Vec::new();
+    version.for_each_row(reader, |row| {
+        if !row.excluded
+            && let Some(v) = row.cells[col]
+                .as_deref()
+                .and_then(|t| t.trim().parse::<f64>().ok())
+            && v.is_finite()
+        {
+            values.push(v);
+        }
+        Ok(ControlFlow::Continue(()))
+    })?;
+    values.sort_unstable_by(f64::total_cmp);
+    Ok(values)
+}
+
+fn stats(p: &ColumnProfile, values: Option<&[f64]>) -> ColumnStats {
+    let numeric = match (&p.numeric, values) {
+        (Some(n), Some(values)) if !values.is_empty() => {
+            let q = &n.quartiles;
+            let (lo_f, hi_f) = (n.fences.lower_inner, n.fences.upper_inner);
+            let inside: Vec<f64> = values
+                .iter()
+                .copied()
+                .filter(|v| *v >= lo_f && *v <= hi_f)
+                .collect();
+            let mut outliers: Vec<f64> = values
+                .iter()
+                .copied()
+                .filter(|v| *v < lo_f || *v > hi_f)
+                .collect();
+            outliers.dedup();
+            outliers.truncate(OUTLIERS_LISTED);
+            let (min, max) = (q.min, q.max);
+            let width = if max > min {
+                (max - min) / HISTOGRAM_BINS as f64
+            } else {
+                1.0
+            };
+            let mut bins: Vec<Bin> = (0..HISTOGRAM_BINS)
+                .map(|i| Bin {
+                    lo: min + width * i as f64,
+                    hi: min + width * (i + 1) as f64,
+                    count: 0,
+                })
+                .collect();
+            for v in values {
+                let i = (((v - min) / width) as usize).min(HISTOGRAM_BINS - 1);
+                bins[i].count += 1;
+            }
+            Some(NumericView {
+                mean: n.mean,
+                std_dev: n.std_dev,
+                min,
+                q1: q.q1,
+                median: q.median,
+                q3: q.q3,
+                max,
+                lower_inner_fence: lo_f,
+                upper_inner_fence: hi_f,
+                lower_whisker: inside.first().copied().unwrap_or(q.q1),
+                upper_whisker: inside.last().copied().unwrap_or(q.q3),
+                outliers,
+                histogram: bins,
+            })
+        }
+        _ => None,
+    };
+    ColumnStats {
+        cells: p.counts.cells,
+        present: p.counts.present,
+        blank: p.counts.blank,
+        declared_missing: p.counts.declared_missing,
+        distinct: p.counts.distinct,
+        numeric,
+        levels: p
+            .top_levels
+            .iter()
+            .map(|l| LevelView {
+                value: l.value.clone(),
+                count: l.count,
+            })
+            .collect(),
+    }
+}
+
+fn columns(
+    reader: &Reader<'_>,
+    before: &Version,
+    after: &Version,
+) -> Result<(Vec<ColumnView>, Vec<ProblemView>)> {
+    let pb = profile_version(reader, before, TableOptions::default())?;
+    let pa = profile_version(reader, after, TableOptions::default())?;
+    let mut out = Vec::new();
+    for (i, a) in pa.columns.iter().enumerate() {
+        let b = pb.columns.iter().find(|c| c.name == a.name);
+        let numeric = a.numeric.is_some() || b.is_some_and(|b| b.numeric.is_some());
+        let (vb, va) = if numeric {
+            let bi = before.col_idx(&a.name).ok();
+            (
+                match bi {
+                    Some(c) => Some(numeric_values(reader, before, c)?),
+                    None => None,
+                },
+                Some(numeric_values(reader, after, i)?),
+            )
+        } else {
+            (None, None)
+        };
+        out.push(ColumnView {
+            name: a.name.clone(),
+            inferred: inferred_name(a.inferred),
+            distrusted: after.is_distrusted(i),
+            before: b.map(|b| stats(b, vb.as_deref())).unwrap_or_default(),
+            after: stats(a, va.as_deref()),
+        });
+    }
+    let problems = pa
+        .findings
+        .iter()
+        .map(|f| ProblemView {
+            column: f.column.clone(),
+            severity: format!("{:?}", f.severity).to_lowercase(),
+            message: f.message.clone(),
+            source: "profile".into(),
+        })
+        .collect();
+    Ok((out, problems))
+}
+
+/// The auditor's report of `table` at `rev` against its raw extract.
+pub fn report_view(
+    reader: &Reader<'_>,
+    table: &str,
+    rev: Rev,
+    verify: &VerifyReport,
+    now: &str,
+) -> Result<ReportView> {
+    let after = Version::load(reader, table, rev.seq, rev.raw)?;
+    let before = Version::load(reader, table, after.ingest_seq, true)?;
+    let trusted: HashSet<[u8; 32]> = reader.signers()?.into_iter().map(|s| s.key).collect();
+    let upto = if rev.raw { after.ingest_seq } else { rev.seq };
+    let mut commits = Vec::new();
+    let mut excluded = Vec::new();
+    let mut distrusted = Vec::new();
+    let mut head = None;
+    for seq in after.ingest_seq..=upto {
+        let Some(stored) = reader.try_commit(seq)? else {
+            continue;
+        };
+        let body = decode(&stored)?;
+        if seq == upto {
+            head = Some((stored.id, body.time.clone()));
+        }
+        let fixes: Vec<FixView> = match &body.change {
+            Change::Fixes(list) => list
+                .iter()
+                .filter(|r| r.fix.table == table)
+                .map(|r| {
+                    match &r.fix.action {
+                        FixAction::Exclude { row } => excluded.push(MarkView {
+                            target: row.to_string(),
+                            why: r.fix.why.clone(),
+                            seq,
+                        }),
+                        FixAction::Distrust { column } => distrusted.push(MarkView {
+                            target: column.clone(),
+                            why: r.fix.why.clone(),
+                            seq,
+                        }),
+                        _ => {}
+                    }
+                    FixView {
+                        kind: r.fix.action.kind().to_string(),
+                        description: r.fix.action.describe(),
+                        why: r.fix.why.clone(),
+                        consulted: r.fix.consulted.clone(),
+                        evidence: r
+                            .fix
+                            .evidence
+                            .iter()
+                            .map(|e| EvidenceView {
+                                name: e.name.clone(),
+                                blake3: e.blob.to_hex(),
+                                n_bytes: e.n_bytes,
+                            })
+                            .collect(),
+                        n_cells: r.edits.len() as u64,
+                        cells: r
+                            .edits
+                            .iter()
+                            .take(CELLS_LISTED)
+                            .map(|e| CellView {
+                                row: e.row.to_string(),
+                                column: e.column.clone(),
+                                old: e.old.clone(),
+                                new: e.new.clone(),
+                            })
+                            .collect(),
+                    }
+                })
+                .collect(),
+            _ => Vec::new(),
+        };
+        let relevant = match &body.change {
+            Change::Ingest(r) => r.table == table,
+            Change::Fixes(_) => !fixes.is_empty(),
+            Change::Tag(_) => false,
+        };
+        if !relevant {
+            continue;
+        }
+        commits.push(CommitView {
+            seq,
+            id: stored.id.to_hex(),
+            author: body.author.name.clone(),
+            email: body.author.email.clone(),
+            fingerprint: signing::fingerprint(&body.author.key),
+            signature: signature(&body, &stored, &trusted),
+            time: body.time.clone(),
+            message: body.message.clone(),
+            kind: match &body.change {
+                Change::Ingest(_) => "ingest",
+                Change::Fixes(_) => "fixes",
+                Change::Tag(_) => "tag",
+            }
+            .into(),
+            fixes,
+        });
+    }
+    let (columns, mut problems) = columns(reader, &before, &after)?;
+    if let Some((_, _, text)) = rules::rules_at(reader, table, upto)?
+        && let Ok(ruleset) = crate::checks::RuleSet::parse(&text)
+        && let Ok(report) = rules::check_version(reader, &after, &ruleset)
+    {
+        for r in report.rules.iter().filter(|r| r.violations > 0) {
+            problems.push(ProblemView {
+                column: r.id.split('.').next().unwrap_or("").to_string(),
+                severity: format!("{:?}", r.severity).to_lowercase(),
+                message: format!("{} ({} rows)", r.description, r.violations),
+                source: "rules".into(),
+            });
+        }
+    }
+    let (version_hash, _) = after.hash(reader)?;
+    let tags: Vec<String> = reader
+        .tags()?
+        .into_iter()
+        .filter(|(_, _, t)| *t == upto)
+        .map(|(n, _, _)| n)
+        .collect();
+    let (head_id, head_time) = match head {
+        Some((id, time)) => (id.to_hex(), time),
+        None => (String::new(), String::new()),
+    };
+    Ok(ReportView {
+        title: format!("{table}: cleaning decisions and their effect"),
+        table: table.to_string(),
+        generated_at: now.to_string(),
+        extract: ExtractView {
+            file_name: after.def.file_name.clone(),
+            blake3: after.def.extract.to_hex(),
+            n_bytes: after.def.n_bytes,
+            n_rows: after.def.n_rows,
+            n_columns: after.def.header.len() as u64,
+            ingest_seq: after.ingest_seq,
+        },
+        version: VersionView {
+            seq: upto,
+            id: head_id,
+            label: if rev.raw {
+                "raw".into()
+            } else if tags.is_empty() {
+                format!("commit {upto}")
+            } else {
+                tags.join(", ")
+            },
+            time: head_time,
+            version_hash: version_hash.to_hex(),
+        },
+        verify: VerifyView {
+            intact: verify.is_clean(),
+            checked: format!(
+                "{} commits, {} chunks, {} stored files, {} table versions, {} index rows",
+                verify.n_commits,
+                verify.n_chunks,
+                verify.n_files,
+                verify.n_versions,
+                verify.n_index_rows
+            ),
+            problems: verify
+                .problems
+                .iter()
+                .map(|p| format!("{}: {}", p.object, p.what))
+                .collect(),
+        },
+        commits,
+        excluded_rows: excluded,
+        distrusted_columns: distrusted,
+        columns,
+        open_problems: problems,
+    })
+}
+
+/// CSVW metadata for an export of `version` written to `csv_url`.
+pub fn codebook_view(
+    reader: &Reader<'_>,
+    version: &Version,
+    csv_url: &str,
+    with_distrusted: bool,
+) -> Result<CodebookView> {
+    let profile = profile_version(reader, version, TableOptions::default())?;
+    let codes = declared_codes(reader, version)?;
+    let mut reasons: HashMap<String, String> = HashMap::new();
+    for seq in version.ingest_seq + 1..=version.seq {
+        let Some(stored) = reader.try_commit(seq)? else {
+            continue;
+        };
+        if let Change::Fixes(list) = decode(&stored)?.change {
+            for r in list {
+                if let (true, FixAction::Distrust { column }) =
+                    (r.fix.table == version.table, r.fix.action)
+                {
+                    reasons.entry(column).or_insert(r.fix.why);
+                }
+            }
+        }
+    }
+    let d = &version.def.dialect;
+    let columns = version
+        .header()
+        .iter()
+        .enumerate()
+        .filter(|(i, _)| with_distrusted || !version.is_distrusted(*i))
+        .map(|(i, name)| {
+            let p = &profile.columns[i];
+            CodebookColumn {
+                name: name.clone(),
+                datatype: CsvwDatatype::from_inferred(&inferred_name(p.inferred)),
+                null_values: vec![String::new()],
+                distrusted_reason: if version.is_distrusted(i) {
+                    reasons.get(name).cloned()
+                } else {
+                    None
+                },
+                missing_codes: codes.get(name).cloned().unwrap_or_default(),
+                description: None,
+            }
+        })
+        .collect();
+    let (hash, _) = version.hash(reader)?;
+    let commit = reader
+        .try_commit(version.seq)?
+        .map(|c| c.id.to_hex())
+        .unwrap_or_default();
+    Ok(CodebookView {
+        csv_url: csv_url.to_string(),
+        title: format!(
+            "{} (cleaned with emend, commit {})",
+            version.table, version.seq
+        ),
+        description: None,
+        primary_key: version.def.key.clone(),
+        columns,
+        dialect: DialectView {
+            delimiter: d.delimiter as char,
+            header: true,
+            encoding: "utf-8".into(),
+            line_terminator: if d.crlf { "\r\n".into() } else { "\n".into() },
+        },
+        source: Some(CodebookSource {
+            table: version.table.clone(),
+            extract_blake3: version.def.extract.to_hex(),
+            version_commit: commit,
+            version_hash: hash.to_hex(),
+        }),
+    })
+}
+
+/// PROV-JSON lineage of a table up to `upto`.
+pub fn prov_view(reader: &Reader<'_>, table: &str, upto: u64) -> Result<ProvView> {
+    let trusted: HashSet<[u8; 32]> = reader.signers()?.into_iter().map(|s| s.key).collect();
+    let tags = reader.tags()?;
+    let mut extracts = Vec::new();
+    let mut commits = Vec::new();
+    let mut signers: Vec<ProvSigner> = Vec::new();
+    let mut previous: Option<String> = None;
+    for seq in 1..=upto {
+        let Some(stored) = reader.try_commit(seq)? else {
+            continue;
+        };
+        let body = decode(&stored)?;
+        let hash = match body.versions.iter().find(|v| v.table == table) {
+            Some(v) => v.hash.to_hex(),
+            None => continue,
+        };
+        let (kind, extract, evidence) = match &body.change {
+            Change::Ingest(r) => {
+                extracts.push(ProvExtract {
+                    blake3: r.extract.to_hex(),
+                    file_name: r.file_name.clone(),
+                    n_bytes: r.n_bytes,
+                });
+                ("ingest", Some(r.extract.to_hex()), Vec::new())
+            }
+            Change::Fixes(list) => (
+                "fixes",
+                None,
+                list.iter()
+                    .filter(|r| r.fix.table == table)
+                    .flat_map(|r| r.fix.evidence.iter())
+                    .map(|e| EvidenceView {
+                        name: e.name.clone(),
+                        blake3: e.blob.to_hex(),
+                        n_bytes: e.n_bytes,
+                    })
+                    .collect(),
+            ),
+            Change::Tag(_) => continue,
+        };
+        let fp = signing::fingerprint(&body.author.key);
+        if !signers.iter().any(|s| s.fingerprint == fp) {
+            signers.push(ProvSigner {
+                fingerprint: fp.clone(),
+                name: body.author.name.clone(),
+                email: body.author.email.clone(),
+                trusted: trusted.contains(&body.author.key),
+            });
+        }
+        commits.push(ProvCommit {
+            seq,
+            id: stored.id.to_hex(),
+            kind: kind.into(),
+            message: body.message.clone(),
+            time: body.time.clone(),
+            signer: fp,
+            signature: signature(&body, &stored, &trusted),
+            previous: if kind == "ingest" {
+                None
+            } else {
+                previous.clone()
+            },
+            extract,
+            evidence,
+            version_hash: hash,
+            tags: tags
+                .iter()
+                .filter(|(_, _, t)| *t == seq)
+                .map(|(n, _, _)| n.clone())
+                .collect(),
+        });
+        previous = Some(stored.id.to_hex());
+    }
+    Ok(ProvView {
+        namespace: "urn:emend:store:".into(),
+        table: table.to_string(),
+        extracts,
+        commits,
+        signers,
+    })
+}
+
+/// One row per cell edit of `table` from its extract up to `upto`.
+pub fn decision_rows(
+    reader: &Reader<'_>,
+    table: &str,
+    ingest_seq: u64,
+    upto: u64,
+) -> Result<Vec<DecisionRow>> {
+    let mut out = Vec::new();
+    for seq in ingest_seq + 1..=upto {
+        let Some(stored) = reader.try_commit(seq)? else {
+            continue;
+        };
+        let body = decode(&stored)?;
+        if let Change::Fixes(list) = &body.change {
+            for r in list.iter().filter(|r| r.fix.table == table) {
+                for e in &r.edits {
+                    out.push(DecisionRow {
+                        row: e.row.to_string(),
+                        column: e.column.clone(),
+                        old: e.old.clone(),
+                        new: e.new.clone(),
+                        fix_kind: r.fix.action.kind().to_string(),
+                        reason: r.fix.why.clone(),
+                        consulted: r.fix.consulted.clone(),
+                        evidence_blake3: r.fix.evidence.iter().map(|e| e.blob.to_hex()).collect(),
+                        commit: stored.id.to_hex(),
+                        author: body.author.name.clone(),
+                        time: body.time.clone(),
+                    });
+                }
+            }
+        }
+    }
+    Ok(out)
+}
