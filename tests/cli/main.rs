@@ -6,6 +6,8 @@ mod audit;
 mod bad_input;
 mod carry;
 mod demo;
+mod faults;
+mod hostile;
 mod identity;
 mod pipes;
 mod profile;
