@@ -210,6 +210,20 @@ pub fn carry(
         }
     }
     let col_of = |c: &str| new_version.col_idx(c).ok();
+    // Per fix: its column in the new extract, and the values a value-level fix looks for,
+    // hashed (a recode map may hold thousands).
+    let cols: Vec<Option<usize>> = fixes
+        .iter()
+        .map(|(fix, _)| fix.action.column().and_then(col_of))
+        .collect();
+    let lookups: Vec<HashSet<&str>> = fixes
+        .iter()
+        .map(|(fix, _)| match &fix.action {
+            FixAction::Recode { pairs, .. } => pairs.iter().map(|(f, _)| f.as_str()).collect(),
+            FixAction::Missing { codes, .. } => codes.iter().map(String::as_str).collect(),
+            _ => HashSet::new(),
+        })
+        .collect();
     let mut rows: HashMap<String, Vec<Option<String>>> = HashMap::new();
     // Per value-level fix: (cells matching now, rows matching now).
     let mut matches: Vec<(u64, HashSet<String>)> = vec![(0, HashSet::new()); fixes.len()];
@@ -219,15 +233,10 @@ pub fn carry(
         }
         for (k, (fix, _)) in fixes.iter().enumerate() {
             let hit = match &fix.action {
-                FixAction::Recode { column, pairs } => col_of(column).is_some_and(|c| {
+                FixAction::Recode { .. } | FixAction::Missing { .. } => cols[k].is_some_and(|c| {
                     r.cells[c]
                         .as_deref()
-                        .is_some_and(|v| pairs.iter().any(|(f, _)| f == v))
-                }),
-                FixAction::Missing { column, codes } => col_of(column).is_some_and(|c| {
-                    r.cells[c]
-                        .as_deref()
-                        .is_some_and(|v| codes.iter().any(|code| code == v))
+                        .is_some_and(|v| lookups[k].contains(v))
                 }),
                 _ => false,
             };

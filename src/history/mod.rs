@@ -501,14 +501,31 @@ fn resolve_fixes(
         fix: &'f Fix,
         col: Option<usize>,
         found: bool,
+        /// For recode and missing: the values to look up, hashed (a map may hold thousands).
+        lookup: std::collections::HashMap<&'f str, Option<&'f str>>,
     }
     let mut prepared: Vec<Prepared<'_>> = fixes
         .iter()
         .map(|f| {
+            let lookup = match &f.action {
+                // First match wins, as documented: keep the first pair for each `from`.
+                FixAction::Recode { pairs, .. } => {
+                    let mut m = std::collections::HashMap::new();
+                    for (from, to) in pairs {
+                        m.entry(from.as_str()).or_insert(Some(to.as_str()));
+                    }
+                    m
+                }
+                FixAction::Missing { codes, .. } => {
+                    codes.iter().map(|c| (c.as_str(), None)).collect()
+                }
+                _ => std::collections::HashMap::new(),
+            };
             Ok(Prepared {
                 fix: f,
                 col: f.action.column().map(|c| version.col_idx(c)).transpose()?,
                 found: false,
+                lookup,
             })
         })
         .collect::<Result<_>>()?;
@@ -550,18 +567,18 @@ fn resolve_fixes(
                         );
                     }
                 }
-                FixAction::Recode { pairs, .. } => {
+                FixAction::Recode { .. } => {
                     let c = p.col.expect("recode names a column");
                     if let Some(v) = &cells[c]
-                        && let Some((_, to)) = pairs.iter().find(|(from, _)| from == v)
+                        && let Some(Some(to)) = p.lookup.get(v.as_str())
                     {
-                        change(c, Some(to.clone()), &mut cells);
+                        change(c, Some(to.to_string()), &mut cells);
                     }
                 }
-                FixAction::Missing { codes, .. } => {
+                FixAction::Missing { .. } => {
                     let c = p.col.expect("missing names a column");
                     if let Some(v) = &cells[c]
-                        && codes.iter().any(|code| code == v)
+                        && p.lookup.contains_key(v.as_str())
                     {
                         change(c, None, &mut cells);
                     }

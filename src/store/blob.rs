@@ -76,7 +76,7 @@ impl<'a> BlobReader<'a> {
         let Some(next) = self.chunks.next() else {
             return Ok(None);
         };
-        let bytes = self.reader.chunk_bytes(&next, &mut self.cache)?;
+        let bytes = self.reader.chunk_bytes_once(&next, &mut self.cache)?;
         Ok(Some((next, bytes)))
     }
 }

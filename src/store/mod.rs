@@ -774,7 +774,14 @@ impl<'a> Reader<'a> {
     /// bytes first (which may be deltas themselves); the cache keeps that linear when a file is
     /// read in order.
     pub fn chunk_bytes(&self, id: &ChunkId, cache: &mut ChunkCache) -> Result<Rc<Vec<u8>>> {
-        self.chunk_bytes_at(id, cache, 0)
+        self.chunk_bytes_at(id, cache, 0, true)
+    }
+
+    /// Like [`Reader::chunk_bytes`], for a chunk read once in order: the chunk itself is not
+    /// kept in the cache (only the reference pieces it needs are), so reading a plain file
+    /// holds one chunk, not the cache's worth.
+    pub fn chunk_bytes_once(&self, id: &ChunkId, cache: &mut ChunkCache) -> Result<Rc<Vec<u8>>> {
+        self.chunk_bytes_at(id, cache, 0, false)
     }
 
     fn chunk_bytes_at(
@@ -782,6 +789,7 @@ impl<'a> Reader<'a> {
         id: &ChunkId,
         cache: &mut ChunkCache,
         depth: usize,
+        keep: bool,
     ) -> Result<Rc<Vec<u8>>> {
         if let Some(hit) = cache.get(id) {
             return Ok(hit);
@@ -843,7 +851,9 @@ impl<'a> Reader<'a> {
             )));
         }
         let raw = Rc::new(raw);
-        cache.put(*id, raw.clone());
+        if keep {
+            cache.put(*id, raw.clone());
+        }
         Ok(raw)
     }
 
@@ -902,7 +912,7 @@ impl<'a> Reader<'a> {
             if end <= lo || *start >= hi {
                 continue;
             }
-            let bytes = self.chunk_bytes_at(chunk, cache, depth)?;
+            let bytes = self.chunk_bytes_at(chunk, cache, depth, true)?;
             let a = lo.max(*start) - start;
             let b = hi.min(end) - start;
             out.extend_from_slice(&bytes[a as usize..b as usize]);
