@@ -777,6 +777,9 @@ def main() -> int:
         parts = []
         for n in args.sizes:
             parts.append(bench.size(n))
+            # Keep what is measured so far, so an interrupted long run still leaves its tables.
+            if args.out:
+                args.out.write_text("\n".join(header) + "\n" + "\n\n".join(parts) + "\n\n(partial)\n")
         flat = bench.flat_summary()
         report = "\n".join(header) + "\n" + "\n\n".join(parts) + ("\n\n" + flat if flat else "")
         report += f"\n\n(whole run: {(time.time() - started) / 60:.1f} min)\n"

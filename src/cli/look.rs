@@ -301,6 +301,7 @@ pub fn summary(body: &CommitBody) -> String {
             r.header.len()
         ),
         Change::Tag(t) => format!("tag {} on commit {}", t.name, t.target_seq),
+        Change::Trust(t) => format!("trust key {} ({}): {}", fingerprint(&t.key), t.name, t.why),
         Change::Fixes(list) => {
             let cells: usize = list.iter().map(|r| r.edits.len()).sum();
             format!(
@@ -343,6 +344,10 @@ pub fn log(a: LogArgs) -> Result<i32> {
                 });
                 let obj = v.as_object_mut().expect("object");
                 match &b.change {
+                    Change::Trust(t) => {
+                        obj.insert("kind".into(), "trust".into());
+                        obj.insert("trust".into(), serde_json::json!({"key": data_encoding::HEXLOWER.encode(&t.key), "fingerprint": fingerprint(&t.key), "name": t.name, "email": t.email, "why": t.why}));
+                    }
                     Change::Tag(t) => {
                         obj.insert("kind".into(), "tag".into());
                         obj.insert("tag".into(), serde_json::json!({"name": t.name, "target_seq": t.target_seq, "target_id": t.target.to_hex()}));

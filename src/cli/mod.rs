@@ -93,6 +93,8 @@ enum Command {
     Export(look::ExportArgs),
     /// Write one self-contained HTML report of a version for an auditor
     Report(look::ReportArgs),
+    /// Vouch for another signing key in a signed commit (key rotation, a new colleague)
+    Trust(trust::TrustArgs),
     /// Check every hash, signature, table version and index row
     Verify(trust::VerifyArgs),
     /// Build a store from bundled demo data and record a cleaning pass
@@ -189,6 +191,7 @@ fn run(cli: Cli) -> Result<i32> {
         Command::Tag(a) => audit::tag_cmd(a),
         Command::Tags(f) => audit::tags_cmd(f.json),
         Command::Verify(a) => trust::verify(a),
+        Command::Trust(a) => trust::trust_key(a),
         Command::Report(a) => look::report(a),
         Command::Demo(a) => demo::run(a),
     }

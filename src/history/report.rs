@@ -251,7 +251,7 @@ pub fn report_view(
         let relevant = match &body.change {
             Change::Ingest(r) => r.table == table,
             Change::Fixes(_) => !fixes.is_empty(),
-            Change::Tag(_) => false,
+            Change::Tag(_) | Change::Trust(_) => false,
         };
         if !relevant {
             continue;
@@ -269,6 +269,7 @@ pub fn report_view(
                 Change::Ingest(_) => "ingest",
                 Change::Fixes(_) => "fixes",
                 Change::Tag(_) => "tag",
+                Change::Trust(_) => "trust",
             }
             .into(),
             fixes,
@@ -462,7 +463,7 @@ pub fn prov_view(reader: &Reader<'_>, table: &str, upto: u64) -> Result<ProvView
                     })
                     .collect(),
             ),
-            Change::Tag(_) => continue,
+            Change::Tag(_) | Change::Trust(_) => continue,
         };
         let fp = signing::fingerprint(&body.author.key);
         if !signers.iter().any(|s| s.fingerprint == fp) {

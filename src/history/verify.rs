@@ -69,7 +69,7 @@ pub fn verify(
     progress: &mut dyn FnMut(&str),
 ) -> Result<VerifyReport> {
     let mut report = VerifyReport::default();
-    let trusted: HashSet<[u8; 32]> = match trust {
+    let mut trusted: HashSet<[u8; 32]> = match trust {
         Trust::Store => reader.signers()?.into_iter().map(|s| s.key).collect(),
         Trust::Keys(keys) => keys.iter().copied().collect(),
     };
@@ -149,6 +149,14 @@ pub fn verify(
                     body.author.name
                 ),
             );
+        }
+        // A key vouched for by a valid commit of a trusted signer is trusted from then on, so an
+        // auditor's list of keys reaches rotated and added keys through the chain.
+        if let Change::Trust(t) = &body.change
+            && signing::verify(&body.author.key, stored.id.as_bytes(), &stored.signature)
+            && trusted.contains(&body.author.key)
+        {
+            trusted.insert(t.key);
         }
         if let Change::Fixes(records) = &body.change {
             for r in records {

@@ -345,6 +345,21 @@ pub enum Change {
     Fixes(Vec<FixRecord>),
     /// A tag on an earlier commit; changes no table.
     Tag(TagRecord),
+    /// A key the signer vouches for (key rotation, a new colleague); changes no table.
+    Trust(TrustRecord),
+}
+
+/// A signing key introduced by a commit signed with an already trusted key.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct TrustRecord {
+    /// The Ed25519 public key.
+    pub key: [u8; 32],
+    /// Its holder's name.
+    pub name: String,
+    /// Its holder's e-mail.
+    pub email: Option<String>,
+    /// Why it is trusted.
+    pub why: String,
 }
 
 /// The recorded hash of a table version produced by a commit.
@@ -408,7 +423,7 @@ impl CommitBody {
                 }
                 out
             }
-            Change::Tag(_) => Vec::new(),
+            Change::Tag(_) | Change::Trust(_) => Vec::new(),
         }
     }
 }

@@ -9,6 +9,7 @@ mod demo;
 mod faults;
 mod hostile;
 mod identity;
+mod keys;
 mod pipes;
 mod profile;
 mod rebuild;
