@@ -165,7 +165,6 @@ fn main() {
         "sample_id,site,sampled_on,volunteer,water_temp_c,ph,turbidity_ntu,dissolved_oxygen_mg_l,weather,calibrated,notes"
     )
     .unwrap();
-    let mut churn = Rng(0xC0FFEE ^ month);
     for i in 1..=rows {
         let mut rng = Rng(i.wrapping_mul(0x2545_F491_4F6C_DD1D));
         let mut r = row(&mut rng, i, demo);
@@ -176,9 +175,13 @@ fn main() {
             r = twin;
             r[0] = format!("S-{i:05}");
         }
-        // Each month changes about 1% of rows for good.
+        // Each month changes about 1% of rows for good: a correction at source (0.8%) or a
+        // withdrawn row (0.1%). The draw depends only on the row and the month, so month K
+        // holds every change of months 1..K, as real re-extracts do.
         let mut withdrawn = false;
-        for _ in 0..month {
+        for j in 1..=month {
+            let mut churn =
+                Rng(i.wrapping_mul(0x9E37_79B9_7F4A_7C15) ^ j.wrapping_mul(0xD1B5_4A32_D192_ED03));
             match churn.below(1000) {
                 0..=7 => r[4] = format!("{:.1}", churn.normal(12.0, 3.0)),
                 8 => withdrawn = true,

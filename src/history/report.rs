@@ -42,21 +42,27 @@ fn inferred_name(t: InferredType) -> String {
     format!("{t:?}").to_lowercase()
 }
 
-/// The numbers of one numeric column of a version, for box plots and histograms.
-fn numeric_values(reader: &Reader<'_>, version: &Version, col: usize) -> Result<Vec<f64>> {
-    let mut values = Vec::new();
+/// The numbers of the given columns of a version, sorted, for box plots and histograms: one
+/// pass over the version for all of them.
+fn numeric_values(reader: &Reader<'_>, version: &Version, cols: &[usize]) -> Result<Vec<Vec<f64>>> {
+    let mut values: Vec<Vec<f64>> = vec![Vec::new(); cols.len()];
     version.for_each_row(reader, |row| {
-        if !row.excluded
-            && let Some(v) = row.cells[col]
-                .as_deref()
-                .and_then(|t| t.trim().parse::<f64>().ok())
-            && v.is_finite()
-        {
-            values.push(v);
+        if !row.excluded {
+            for (k, &c) in cols.iter().enumerate() {
+                if let Some(v) = row.cells[c]
+                    .as_deref()
+                    .and_then(|t| t.trim().parse::<f64>().ok())
+                    && v.is_finite()
+                {
+                    values[k].push(v);
+                }
+            }
         }
         Ok(ControlFlow::Continue(()))
     })?;
-    values.sort_unstable_by(f64::total_cmp);
+    for v in &mut values {
+        v.sort_unstable_by(f64::total_cmp);
+    }
     Ok(values)
 }
 
@@ -137,21 +143,41 @@ fn columns(
 ) -> Result<(Vec<ColumnView>, Vec<ProblemView>)> {
     let pb = profile_version(reader, before, TableOptions::default())?;
     let pa = profile_version(reader, after, TableOptions::default())?;
+    // The numeric columns (numeric before or after), read in one pass per version.
+    let numeric: Vec<(usize, Option<usize>)> = pa
+        .columns
+        .iter()
+        .enumerate()
+        .filter(|(_, a)| {
+            a.numeric.is_some()
+                || pb
+                    .columns
+                    .iter()
+                    .any(|b| b.name == a.name && b.numeric.is_some())
+        })
+        .map(|(i, a)| (i, before.col_idx(&a.name).ok()))
+        .collect();
+    let after_cols: Vec<usize> = numeric.iter().map(|(i, _)| *i).collect();
+    let before_cols: Vec<usize> = numeric.iter().filter_map(|(_, b)| *b).collect();
+    let mut after_values = numeric_values(reader, after, &after_cols)?.into_iter();
+    let mut before_values = numeric_values(reader, before, &before_cols)?.into_iter();
+    let mut values: std::collections::HashMap<usize, (Option<Vec<f64>>, Vec<f64>)> =
+        std::collections::HashMap::new();
+    for (i, b) in &numeric {
+        let va = after_values.next().expect("one list per column");
+        let vb = if b.is_some() {
+            before_values.next()
+        } else {
+            None
+        };
+        values.insert(*i, (vb, va));
+    }
     let mut out = Vec::new();
     for (i, a) in pa.columns.iter().enumerate() {
         let b = pb.columns.iter().find(|c| c.name == a.name);
-        let numeric = a.numeric.is_some() || b.is_some_and(|b| b.numeric.is_some());
-        let (vb, va) = if numeric {
-            let bi = before.col_idx(&a.name).ok();
-            (
-                match bi {
-                    Some(c) => Some(numeric_values(reader, before, c)?),
-                    None => None,
-                },
-                Some(numeric_values(reader, after, i)?),
-            )
-        } else {
-            (None, None)
+        let (vb, va) = match values.remove(&i) {
+            Some((vb, va)) => (vb, Some(va)),
+            None => (None, None),
         };
         out.push(ColumnView {
             name: a.name.clone(),
