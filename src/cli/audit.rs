@@ -117,6 +117,116 @@ fn change_text(old: &Option<String>, new: &Option<String>) -> String {
     }
 }
 
+/// One CSV line of `diff --csv`: table, change, row, old_row, column, old, new, and the fix
+/// (commit, commit id, kind, reason) when a fix made the change.
+struct CsvChange<'d> {
+    change: &'d str,
+    row: String,
+    old_row: String,
+    column: String,
+    old: Option<String>,
+    new: Option<String>,
+    by: &'d Option<FixRef>,
+}
+
+fn diff_csv_lines(d: &Diff) -> Vec<[String; 11]> {
+    let none: &Option<FixRef> = &None;
+    let mut changes: Vec<CsvChange<'_>> = Vec::new();
+    let plain = |change: &'static str, row: String, column: String| CsvChange {
+        change,
+        row,
+        old_row: String::new(),
+        column,
+        old: None,
+        new: None,
+        by: none,
+    };
+    for c in &d.cells {
+        changes.push(CsvChange {
+            change: "cell",
+            row: c.row.to_string(),
+            old_row: c
+                .old_row
+                .as_ref()
+                .map(|r| r.to_string())
+                .unwrap_or_default(),
+            column: c.column.clone(),
+            old: c.old.clone(),
+            new: c.new.clone(),
+            by: &c.by,
+        });
+    }
+    changes.extend(
+        d.rows_added
+            .iter()
+            .map(|r| plain("row added", r.row.to_string(), String::new())),
+    );
+    changes.extend(
+        d.rows_removed
+            .iter()
+            .map(|r| plain("row removed", r.row.to_string(), String::new())),
+    );
+    for m in &d.rows_excluded {
+        let change = if m.set_in_to {
+            "row excluded"
+        } else {
+            "row no longer excluded"
+        };
+        changes.push(CsvChange {
+            by: &m.by,
+            ..plain(change, m.target.replace('\u{1f}', ","), String::new())
+        });
+    }
+    for m in &d.columns_distrusted {
+        let change = if m.set_in_to {
+            "column distrusted"
+        } else {
+            "column no longer distrusted"
+        };
+        changes.push(CsvChange {
+            by: &m.by,
+            ..plain(change, String::new(), m.target.clone())
+        });
+    }
+    changes.extend(
+        d.columns_added
+            .iter()
+            .map(|c| plain("column added", String::new(), c.clone())),
+    );
+    changes.extend(
+        d.columns_removed
+            .iter()
+            .map(|c| plain("column removed", String::new(), c.clone())),
+    );
+    changes
+        .into_iter()
+        .map(|c| {
+            let (seq, id, kind, why) = match c.by {
+                Some(f) => (
+                    f.seq.to_string(),
+                    f.id.to_hex(),
+                    f.kind.clone(),
+                    f.why.clone(),
+                ),
+                None => Default::default(),
+            };
+            [
+                d.table.clone(),
+                c.change.to_string(),
+                c.row,
+                c.old_row,
+                c.column,
+                c.old.unwrap_or_default(),
+                c.new.unwrap_or_default(),
+                seq,
+                id,
+                kind,
+                why,
+            ]
+        })
+        .collect()
+}
+
 fn csv_line(o: &mut dyn Write, fields: &[String]) -> Result<()> {
     emend::ingest::csv::write_record(o, fields.iter().map(|f| f.as_bytes()), b',', false, false)?;
     Ok(())
@@ -169,156 +279,8 @@ pub fn diff_cmd(a: DiffArgs) -> Result<i32> {
             .map(String::from),
         )?;
         for d in &diffs {
-            let fix = |f: &Option<FixRef>| match f {
-                Some(f) => [
-                    f.seq.to_string(),
-                    f.id.to_hex(),
-                    f.kind.clone(),
-                    f.why.clone(),
-                ],
-                None => Default::default(),
-            };
-            for c in &d.cells {
-                let [s, id, k, w] = fix(&c.by);
-                csv_line(
-                    &mut o,
-                    &[
-                        d.table.clone(),
-                        "cell".into(),
-                        c.row.to_string(),
-                        c.old_row
-                            .as_ref()
-                            .map(|r| r.to_string())
-                            .unwrap_or_default(),
-                        c.column.clone(),
-                        c.old.clone().unwrap_or_default(),
-                        c.new.clone().unwrap_or_default(),
-                        s,
-                        id,
-                        k,
-                        w,
-                    ],
-                )?;
-            }
-            for r in &d.rows_added {
-                csv_line(
-                    &mut o,
-                    &[
-                        d.table.clone(),
-                        "row added".into(),
-                        r.row.to_string(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                    ],
-                )?;
-            }
-            for r in &d.rows_removed {
-                csv_line(
-                    &mut o,
-                    &[
-                        d.table.clone(),
-                        "row removed".into(),
-                        r.row.to_string(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                    ],
-                )?;
-            }
-            for m in &d.rows_excluded {
-                let [s, id, k, w] = fix(&m.by);
-                let change = if m.set_in_to {
-                    "row excluded"
-                } else {
-                    "row no longer excluded"
-                };
-                csv_line(
-                    &mut o,
-                    &[
-                        d.table.clone(),
-                        change.into(),
-                        m.target.replace('\u{1f}', ","),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        s,
-                        id,
-                        k,
-                        w,
-                    ],
-                )?;
-            }
-            for m in &d.columns_distrusted {
-                let [s, id, k, w] = fix(&m.by);
-                let change = if m.set_in_to {
-                    "column distrusted"
-                } else {
-                    "column no longer distrusted"
-                };
-                csv_line(
-                    &mut o,
-                    &[
-                        d.table.clone(),
-                        change.into(),
-                        String::new(),
-                        String::new(),
-                        m.target.clone(),
-                        String::new(),
-                        String::new(),
-                        s,
-                        id,
-                        k,
-                        w,
-                    ],
-                )?;
-            }
-            for c in &d.columns_added {
-                csv_line(
-                    &mut o,
-                    &[
-                        d.table.clone(),
-                        "column added".into(),
-                        String::new(),
-                        String::new(),
-                        c.clone(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                    ],
-                )?;
-            }
-            for c in &d.columns_removed {
-                csv_line(
-                    &mut o,
-                    &[
-                        d.table.clone(),
-                        "column removed".into(),
-                        String::new(),
-                        String::new(),
-                        c.clone(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                        String::new(),
-                    ],
-                )?;
+            for line in diff_csv_lines(d) {
+                csv_line(&mut o, &line)?;
             }
         }
         return Ok(0);
