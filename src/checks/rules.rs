@@ -162,6 +162,7 @@ impl RuleSet {
             doc: &doc,
             table: root.get_ref(),
             path: String::new(),
+            span: 0..0,
         };
         root.allow(&["columns", "conditions", "flags"])?;
 
@@ -378,13 +379,20 @@ struct Reader<'d, 'a, 'i> {
     doc: &'d Doc<'d>,
     table: &'a DeTable<'i>,
     path: String,
+    /// Where the table itself is written, for errors about an empty table.
+    span: Range<usize>,
 }
 
 impl<'d, 'a, 'i> Reader<'d, 'a, 'i> {
     /// Reads `node` as a table at `path`.
     fn of(doc: &'d Doc<'d>, node: &'a Node<'i>, path: String) -> Result<Self, RuleError> {
         match node.get_ref() {
-            DeValue::Table(table) => Ok(Reader { doc, table, path }),
+            DeValue::Table(table) => Ok(Reader {
+                doc,
+                table,
+                path,
+                span: node.span(),
+            }),
             _ => Err(doc.wrong_type(node, &path, "a table")),
         }
     }
@@ -439,9 +447,12 @@ impl<'d, 'a, 'i> Reader<'d, 'a, 'i> {
 
     /// The place of the whole table (its header, or its first key for dotted tables).
     fn first_pos(&self) -> Option<Pos> {
+        // An empty table (`hard = {}`) has no first key: name where the table is written.
+        // (Found by fuzzing: the error used to say line 0.)
         self.entries()
             .first()
             .map(|(key, _)| self.doc.pos(key.span()))
+            .or_else(|| Some(self.doc.pos(self.span.clone())))
     }
 }
 
@@ -883,6 +894,14 @@ fn regex_message(err: &regex::Error) -> String {
 
 #[cfg(test)]
 mod tests {
+    #[test]
+    fn an_empty_bounds_table_names_its_line() {
+        // Found by fuzzing (fuzz/fuzz_targets/rules_parser.rs): the error said line 0.
+        let err = super::RuleSet::parse("[columns.ph]\nhard ={ }\n").unwrap_err();
+        assert_eq!(err.line, 2, "{err}");
+        assert!(err.to_string().contains("give min, max or both"));
+    }
+
     use super::*;
 
     /// Parses `text` and asserts the error's `Display`.
