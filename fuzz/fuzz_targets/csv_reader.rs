@@ -20,7 +20,10 @@ fuzz_target!(|data: &[u8]| {
             Ok(false) => break,
             Err(ReadError::Csv(e)) => {
                 assert!(e.line >= 1, "errors name a line");
-                assert!(e.offset as usize <= rest.len(), "errors point inside the input");
+                assert!(
+                    e.offset as usize <= rest.len(),
+                    "errors point inside the input"
+                );
                 return;
             }
             Err(ReadError::Io(e)) => panic!("reading a slice cannot fail: {e}"),
@@ -30,7 +33,14 @@ fuzz_target!(|data: &[u8]| {
     // reader returns as one empty field and the writer writes as an empty line).
     let mut out = Vec::new();
     for r in &records {
-        write_record(&mut out, r.iter().map(Vec::as_slice), delimiter, false, false).expect("write to a Vec");
+        write_record(
+            &mut out,
+            r.iter().map(Vec::as_slice),
+            delimiter,
+            false,
+            false,
+        )
+        .expect("write to a Vec");
     }
     let mut again = CsvReader::new(&out[..], delimiter);
     let mut back: Vec<Vec<Vec<u8>>> = Vec::new();

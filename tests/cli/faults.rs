@@ -277,3 +277,37 @@ fn concurrent_writers_land_every_fix_once_on_a_linear_chain() {
     let pending = dir.cmd(["status", "--json"]).ok().json();
     assert_eq!(pending["pending"].as_array().unwrap().len(), 0);
 }
+
+/// A writer that finds the store locked by another for longer than its bounded wait (10 s)
+/// gives up with a clear message and changes nothing.
+#[test]
+fn a_busy_store_makes_a_writer_wait_then_fail_clearly() {
+    let dir = TestDir::new("busy");
+    setup_store(&dir);
+    dir.write("t.csv", "id,v\nA,1\n");
+    dir.cmd(["ingest", "t.csv", "--table", "t", "--key", "id"])
+        .ok();
+    let before = crate::util::store_state(&dir);
+    let lock = crate::util::open_db(&dir);
+    lock.execute_batch("BEGIN IMMEDIATE")
+        .expect("take the write lock");
+    let started = Instant::now();
+    let out = dir
+        .cmd(["set", "t", "A", "v", "2", "--why", "while locked"])
+        .code(2);
+    let waited = started.elapsed();
+    out.fails(&["busy", "another emend process"]);
+    assert!(
+        waited >= Duration::from_secs(9),
+        "it waited {waited:?} before giving up"
+    );
+    assert!(
+        waited < Duration::from_secs(30),
+        "the wait is bounded: {waited:?}"
+    );
+    lock.execute_batch("ROLLBACK").expect("release");
+    drop(lock);
+    assert_eq!(crate::util::store_state(&dir), before);
+    dir.cmd(["set", "t", "A", "v", "2", "--why", "after the lock"])
+        .ok();
+}
