@@ -15,16 +15,7 @@ fn public_key(dir: &TestDir, home: &str) -> String {
 fn two_signers() -> TestDir {
     let dir = TestDir::new("two_signers");
     setup_store(&dir);
-    dir.write("river.csv", RIVER_CSV);
-    dir.cmd([
-        "ingest",
-        "river.csv",
-        "--table",
-        "samples",
-        "--key",
-        "sample_id",
-    ])
-    .ok();
+    crate::util::ingest_river(&dir);
     dir.cmd(["exclude", "samples", "RW-004", "--why", "duplicate"])
         .ok();
     dir.cmd(["commit", "-m", "by the steward"]).ok();
@@ -206,16 +197,7 @@ fn a_commit_re_signed_by_a_key_added_to_the_store_is_caught_by_an_auditor_key_fi
     use ed25519_dalek::Signer as _;
     let dir = TestDir::new("resign");
     setup_store(&dir);
-    dir.write("river.csv", RIVER_CSV);
-    dir.cmd([
-        "ingest",
-        "river.csv",
-        "--table",
-        "samples",
-        "--key",
-        "sample_id",
-    ])
-    .ok();
+    crate::util::ingest_river(&dir);
     dir.cmd([
         "set",
         "samples",

@@ -7,16 +7,7 @@ use crate::walkthrough::RIVER_CSV;
 fn river_store(name: &str) -> TestDir {
     let dir = TestDir::new(name);
     setup_store(&dir);
-    dir.write("river.csv", RIVER_CSV);
-    dir.cmd([
-        "ingest",
-        "river.csv",
-        "--table",
-        "samples",
-        "--key",
-        "sample_id",
-    ])
-    .ok();
+    crate::util::ingest_river(&dir);
     dir
 }
 

@@ -423,3 +423,18 @@ pub fn assert_no_ansi(what: &str, text: &str) {
         "{what} holds an ANSI escape: {text:?}"
     );
 }
+
+/// Write the walk-through's river extract and ingest it as table `samples`, keyed by
+/// `sample_id` (the setup most integration tests start from).
+pub fn ingest_river(dir: &TestDir) {
+    dir.write("river.csv", crate::walkthrough::RIVER_CSV);
+    dir.cmd([
+        "ingest",
+        "river.csv",
+        "--table",
+        "samples",
+        "--key",
+        "sample_id",
+    ])
+    .ok();
+}
