@@ -15,7 +15,7 @@ impl Digest {
     /// BLAKE3 of `bytes`.
     ///
     /// ```
-    /// // Source: BLAKE3 official test vectors, input length 0 (shared/reference/blake3_vectors.json)
+    /// // Source: BLAKE3 official test vectors, input length 0 (tests/reference/blake3_vectors.json)
     /// let d = emend::hash::Digest::of(b"");
     /// assert_eq!(d.to_hex(), "af1349b9f5f9a1a6a0404dea36dcc9499bcb25c9adc112b7cc9a93cae41f3262");
     /// ```
@@ -171,18 +171,13 @@ mod tests {
     use super::*;
 
     fn reference() -> serde_json::Value {
-        let path = concat!(
-            env!("CARGO_MANIFEST_DIR"),
-            "/../shared/reference/blake3_vectors.json"
-        );
-        serde_json::from_str(&std::fs::read_to_string(path).expect("reference file present"))
-            .expect("reference file is JSON")
+        crate::testdata::reference("blake3_vectors.json")
     }
 
     #[test]
     fn blake3_official_vectors() {
         // Source: BLAKE3 official test vectors, BLAKE3-team/BLAKE3 test_vectors/test_vectors.json
-        // (shared/reference/blake3_vectors.json); input byte i is i mod 251.
+        // (tests/reference/blake3_vectors.json); input byte i is i mod 251.
         let doc = reference();
         let cases = doc["cases"].as_array().expect("cases array");
         assert!(cases.len() >= 12);

@@ -21,3 +21,6 @@ pub mod signing;
 pub mod store;
 
 pub use error::{Error, Result};
+
+#[cfg(test)]
+mod testdata;

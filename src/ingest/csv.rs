@@ -455,14 +455,8 @@ mod tests {
     #[test]
     fn rfc4180_reference_cases() {
         // Source: RFC 4180 section 2 rules 1-7 and ABNF, cases and expected parses in
-        // shared/reference/csv_rfc4180_cases.json.
-        let path = concat!(
-            env!("CARGO_MANIFEST_DIR"),
-            "/../shared/reference/csv_rfc4180_cases.json"
-        );
-        let doc: serde_json::Value =
-            serde_json::from_str(&std::fs::read_to_string(path).expect("reference present"))
-                .expect("json");
+        // tests/reference/csv_rfc4180_cases.json.
+        let doc = crate::testdata::reference("csv_rfc4180_cases.json");
         let cases = doc["cases"].as_array().expect("cases");
         assert!(cases.len() >= 13);
         for case in cases {

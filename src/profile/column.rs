@@ -991,12 +991,8 @@ mod tests {
     #[test]
     fn strd_through_the_profiler() {
         // Source: NIST StRD univariate, NumAcc4 certified mean 10000000.2 and s = 0.1
-        // (shared/reference/strd_univariate.json); the cells go through push() as text.
-        let path = concat!(
-            env!("CARGO_MANIFEST_DIR"),
-            "/../shared/reference/strd/NumAcc4.dat"
-        );
-        let text = std::fs::read_to_string(path).unwrap();
+        // (tests/reference/strd_univariate.json); the cells go through push() as text.
+        let text = crate::testdata::reference_text("strd/NumAcc4.dat");
         let mut p = ColumnProfiler::new("y", ProfileOptions::default());
         for line in text.lines().skip(60) {
             p.push(Some(line.trim()));

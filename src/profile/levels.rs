@@ -322,7 +322,7 @@ pub fn near_duplicate_groups(levels: &[(&str, u64)], jw_threshold: f64) -> Vec<L
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::profile::testdata::reference;
+    use crate::testdata::reference;
 
     #[test]
     fn fold_tables_cover_their_blocks() {
@@ -359,7 +359,7 @@ mod tests {
 
     #[test]
     fn levenshtein_reference() {
-        // Source: Levenshtein (1966); values in shared/reference/string_distance.json,
+        // Source: Levenshtein (1966); values in tests/reference/string_distance.json,
         // `levenshtein_family` (rapidfuzz 3.14.6 and jellyfish 1.3.0 agree; exact integers,
         // counted in code points).
         let json = reference("string_distance.json");
@@ -374,7 +374,7 @@ mod tests {
 
     #[test]
     fn jaro_winkler_reference() {
-        // Source: Winkler (1990) table as remembered in shared/reference/string_distance.json
+        // Source: Winkler (1990) table as remembered in tests/reference/string_distance.json
         // `jaro_and_jaro_winkler`: rows with rounded_3dp_matches_published = true are checked
         // against the published 3-decimal values; every row is checked against the
         // jellyfish 1.3.0 / rapidfuzz 3.14.6 computed values to 1e-12.

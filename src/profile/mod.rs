@@ -36,7 +36,6 @@ pub mod render;
 pub mod stats;
 pub mod table;
 #[cfg(test)]
-mod testdata;
 pub mod types;
 
 pub use column::{ColumnProfile, ColumnProfiler, Counts, Flag, LevelFreq, ProfileOptions};

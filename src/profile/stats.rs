@@ -31,7 +31,7 @@ fn pow10_i128(k: u8) -> i128 {
 /// use emend::profile::stats::Moments;
 /// use emend::profile::types::parse_number;
 /// // Source: NIST StRD univariate, NumAcc1 data and certified mean 10000002, s = 1
-/// // (shared/reference/strd_univariate.json).
+/// // (tests/reference/strd_univariate.json).
 /// let mut m = Moments::default();
 /// for s in ["10000001", "10000003", "10000002"] {
 ///     m.push(parse_number(s).unwrap().0);
@@ -282,7 +282,7 @@ fn count_of(sorted: &[f64], x: f64) -> u64 {
     (hi - lo) as u64
 }
 
-/// Common-practice numeric missing codes. Source: shared/reference/missing_values.json,
+/// Common-practice numeric missing codes. Source: tests/reference/missing_values.json,
 /// `numeric_sentinel_codes` (common practice, no standard); -1 and 0 are left out because
 /// they collide with real values.
 pub const SENTINEL_CODES: [f64; 8] = [-9999.0, -999.0, -99.0, -9.0, 9.0, 99.0, 999.0, 9999.0];
@@ -517,7 +517,7 @@ pub fn summarize(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::profile::testdata::{exact_fraction, f64s, reference};
+    use crate::testdata::{exact_fraction, f64s, reference, strd_data};
     use crate::profile::types::parse_number;
 
     /// Log relative error, NIST's count of agreeing significant digits, capped at 15.
@@ -541,22 +541,6 @@ mod tests {
         m
     }
 
-    /// Reads the data lines of an StRD .dat file (from line 61).
-    fn strd_data(file: &str) -> Vec<String> {
-        let path = format!(
-            "{}/../shared/reference/{}",
-            env!("CARGO_MANIFEST_DIR"),
-            file
-        );
-        let text = std::fs::read_to_string(&path).expect("StRD data file is readable");
-        text.lines()
-            .skip(60)
-            .map(str::trim)
-            .filter(|l| !l.is_empty())
-            .map(str::to_owned)
-            .collect()
-    }
-
     fn check_strd(name: &str, min_mean_lre: f64, min_sd_lre: f64) {
         let json = reference("strd_univariate.json");
         let set = &json["datasets"][name];
@@ -578,7 +562,7 @@ mod tests {
     }
 
     // Source: NIST StRD univariate summary statistics, certified mean and s (denominator
-    // n − 1) in shared/reference/strd_univariate.json, data from shared/reference/strd/*.dat
+    // n − 1) in tests/reference/strd_univariate.json, data from tests/reference/strd/*.dat
     // (line 61 on). LRE = −log10(|computed − certified| / |certified|), capped at 15.
     // Achieved: 15 (the cap) for every mean and s, except PiDigits s at 14.9; the
     // thresholds below are those figures rounded down to whole digits.
@@ -630,7 +614,7 @@ mod tests {
 
     #[test]
     fn quantiles_type7_reference() {
-        // Source: Hyndman & Fan (1996) type 7, values in shared/reference/quantiles.json
+        // Source: Hyndman & Fan (1996) type 7, values in tests/reference/quantiles.json
         // (numpy 'linear', scipy mquantiles (1,1) and exact fractions agree); checked
         // against the exact `type7_exact` fractions.
         let json = reference("quantiles.json");
@@ -659,7 +643,7 @@ mod tests {
     #[test]
     fn tukey_fences_reference() {
         // Source: Tukey (1977) fences in the quartile form of the NIST/SEMATECH e-Handbook
-        // §7.1.6, on type-7 quartiles: shared/reference/outliers.json, box_plot_fences,
+        // §7.1.6, on type-7 quartiles: tests/reference/outliers.json, box_plot_fences,
         // `type7` block (numpy, scipy.stats.iqr and exact fractions agree). Not the hinges.
         let json = reference("outliers.json");
         let cases = json["box_plot_fences"]["cases"].as_array().unwrap();
@@ -703,7 +687,7 @@ mod tests {
     #[test]
     fn modified_z_reference() {
         // Source: Iglewicz & Hoaglin (1993), M = 0.6745 (x − median) / MAD, flag |M| > 3.5;
-        // shared/reference/outliers.json, modified_z_score cases (numpy, scipy and exact
+        // tests/reference/outliers.json, modified_z_score cases (numpy, scipy and exact
         // fractions). Compared with the exact fractions to 1e-9: float MAD carries roundoff
         // (0.09999999999999987 for an exact 1/10 in M1).
         let json = reference("outliers.json");

@@ -198,7 +198,7 @@ pub fn parse_date(text: &str) -> Option<DateForm> {
 const BOOLEAN_WORDS: [&str; 6] = ["true", "false", "yes", "no", "y", "n"];
 
 /// Tokens that common practice uses for "missing", compared ignoring ASCII case after
-/// trimming. Source: shared/reference/missing_values.json, `string_tokens_common` and
+/// trimming. Source: tests/reference/missing_values.json, `string_tokens_common` and
 /// pandas 3.1.1 `read_csv` default `na_values` (common practice and a library default; no
 /// standard defines them).
 pub const COMMON_MISSING_TOKENS: [&str; 19] = [
@@ -568,11 +568,11 @@ mod tests {
 
     #[test]
     fn common_practice_tokens_are_missing() {
-        // Source: shared/reference/missing_values.json, common_practice_not_standards:
+        // Source: tests/reference/missing_values.json, common_practice_not_standards:
         // `string_tokens_common` (common practice, no single source) and pandas 3.1.1
         // `read_csv` default na_values (a library default). The empty string is a blank,
         // handled before classification.
-        let json = crate::profile::testdata::reference("missing_values.json");
+        let json = crate::testdata::reference("missing_values.json");
         let practice = &json["common_practice_not_standards"];
         let tokens = practice["string_tokens_common"]
             .as_array()
@@ -595,7 +595,7 @@ mod tests {
         assert_eq!(checked, 13 + 18);
         // Source: same file, `numeric_sentinel_codes`; -1 and 0 are left out on purpose
         // (the file notes they collide with real values).
-        let codes = crate::profile::testdata::f64s(&practice["numeric_sentinel_codes"]);
+        let codes = crate::testdata::f64s(&practice["numeric_sentinel_codes"]);
         let mut ours = crate::profile::stats::SENTINEL_CODES.to_vec();
         let mut theirs: Vec<f64> = codes
             .into_iter()

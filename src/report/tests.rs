@@ -1,6 +1,6 @@
 //! Tests of the whole module: the HTML report parsed back with an HTML5 parser, the drawings
 //! recomputed from the view, and the exports checked against the W3C documents and RFC 4180
-//! (reference files in `shared/reference/`, each named beside its check).
+//! (reference files in `tests/reference/`, each named beside its check).
 
 use std::collections::BTreeSet;
 
@@ -737,11 +737,7 @@ fn non_finite_summaries_are_not_drawn() {
 // CSVW
 // ---------------------------------------------------------------------------------------------
 
-fn reference(file: &str) -> Value {
-    let path = format!("{}/../shared/reference/{file}", env!("CARGO_MANIFEST_DIR"));
-    let text = std::fs::read_to_string(&path).expect("reference file is readable");
-    serde_json::from_str(&text).expect("reference file is JSON")
-}
+use crate::testdata::reference;
 
 fn codebook() -> CodebookView {
     CodebookView {
@@ -824,7 +820,7 @@ fn csvw_has_the_required_keys_and_types() {
     // Source: Metadata Vocabulary §5.2 (top-level `@context`): the CSVW context IRI, or an
     // array of it and an object with only `@base`/`@language`; validation test134 "A metadata
     // document MUST NOT add a new context". Shape as in Example 2, reproduced in
-    // shared/reference/csvw_dialect_defaults.json (minimal_table_description_example_2).
+    // tests/reference/csvw_dialect_defaults.json (minimal_table_description_example_2).
     let reference = reference("csvw_dialect_defaults.json");
     let example = &reference["minimal_table_description_example_2"];
     assert_eq!(meta["@context"][0], example["@context"][0]);
@@ -888,7 +884,7 @@ fn csvw_dialect_uses_the_recommendation_names_and_types() {
     let meta = csvw_metadata(&codebook());
     let dialect = meta["dialect"].as_object().unwrap();
     // Source: §5.9 Dialect Descriptions, property defaults as listed in
-    // shared/reference/csvw_dialect_defaults.json (dialect_property_defaults_section_5_9):
+    // tests/reference/csvw_dialect_defaults.json (dialect_property_defaults_section_5_9):
     // every property we write is one of those, with the same JSON type.
     let reference = reference("csvw_dialect_defaults.json");
     let defaults = reference["dialect_property_defaults_section_5_9"]
@@ -1006,7 +1002,7 @@ fn prov_view() -> ProvView {
 
 #[test]
 fn prov_json_matches_the_minimal_document_shape() {
-    // Source: shared/reference/prov_minimal.json — PROV-JSON (W3C Member Submission,
+    // Source: tests/reference/prov_minimal.json — PROV-JSON (W3C Member Submission,
     // 24 April 2013) top-level keys, and relation key names confirmed with the `prov` 3.2.3
     // package (core_relations.*.prov_json_keys).
     let reference = reference("prov_minimal.json");
@@ -1205,7 +1201,7 @@ fn parse_csv(input: &str) -> Result<Vec<Vec<String>>, String> {
 
 #[test]
 fn the_test_reader_agrees_with_the_rfc_cases() {
-    // Source: RFC 4180 §2 rules 1-7 and ABNF; cases in shared/reference/csv_rfc4180_cases.json.
+    // Source: RFC 4180 §2 rules 1-7 and ABNF; cases in tests/reference/csv_rfc4180_cases.json.
     let reference = reference("csv_rfc4180_cases.json");
     for case in reference["cases"].as_array().unwrap() {
         let id = case["id"].as_str().unwrap();

@@ -71,14 +71,8 @@ mod tests {
     #[test]
     fn rfc8032_vectors() {
         // Source: RFC 8032 section 7.1 test vectors TEST 1, 2, 3, 1024 and SHA(abc)
-        // (shared/reference/ed25519_rfc8032.json).
-        let path = concat!(
-            env!("CARGO_MANIFEST_DIR"),
-            "/../shared/reference/ed25519_rfc8032.json"
-        );
-        let doc: serde_json::Value =
-            serde_json::from_str(&std::fs::read_to_string(path).expect("reference present"))
-                .expect("json");
+        // (tests/reference/ed25519_rfc8032.json).
+        let doc = crate::testdata::reference("ed25519_rfc8032.json");
         let cases = doc["cases"].as_array().expect("cases");
         assert!(cases.len() >= 5);
         for case in cases {

@@ -2,6 +2,10 @@
 
 mod util;
 
+// The same reference loader the unit tests use (`src/testdata.rs`), reading `tests/reference/`.
+#[path = "../../src/testdata.rs"]
+mod testdata;
+
 mod audit;
 mod bad_input;
 mod carry;

@@ -195,18 +195,11 @@ fn codebook_and_provenance_follow_the_w3c_shapes() {
         ],
     )
     .ok();
-    let reference: Value = serde_json::from_str(
-        &std::fs::read_to_string(concat!(
-            env!("CARGO_MANIFEST_DIR"),
-            "/../shared/reference/csvw_dialect_defaults.json"
-        ))
-        .unwrap(),
-    )
-    .unwrap();
+    let reference = crate::testdata::reference("csvw_dialect_defaults.json");
     let cb: Value = serde_json::from_slice(&dir.read("d/clean.csv-metadata.json")).unwrap();
     // Source: W3C CSVW Metadata Vocabulary for Tabular Data (2015) §5.2 (@context), §5.4.1
     // (url), §5.5 (tableSchema, primaryKey), §5.6 (columns), §5.7 (null)
-    // (shared/reference/csvw_dialect_defaults.json).
+    // (tests/reference/csvw_dialect_defaults.json).
     assert!(reference.is_object());
     assert_eq!(cb["@context"][0], "http://www.w3.org/ns/csvw");
     assert_eq!(cb["url"], "clean.csv");
@@ -241,15 +234,8 @@ fn codebook_and_provenance_follow_the_w3c_shapes() {
         serde_json::json!(["-999"])
     );
     // Source: W3C PROV-DM (2013) core relations and the PROV-JSON Member Submission key names
-    // (shared/reference/prov_minimal.json).
-    let prov_ref: Value = serde_json::from_str(
-        &std::fs::read_to_string(concat!(
-            env!("CARGO_MANIFEST_DIR"),
-            "/../shared/reference/prov_minimal.json"
-        ))
-        .unwrap(),
-    )
-    .unwrap();
+    // (tests/reference/prov_minimal.json).
+    let prov_ref = crate::testdata::reference("prov_minimal.json");
     let prov: Value = serde_json::from_slice(&dir.read("d/prov.json")).unwrap();
     for key in prov_ref["minimal_document"].as_object().unwrap().keys() {
         assert!(prov.get(key).is_some(), "PROV-JSON key {key} missing");
