@@ -5,20 +5,25 @@
 //! exported, and verified. The library does the work and returns data; the `emend` binary
 //! parses arguments, prints and sets exit codes.
 //!
-//! Start at [`store::Store`] (open or create a store), [`history`] (ingest, record fixes,
-//! commit, resolve revisions) and [`history::verify`].
+//! Start at [`store::Store`] (open or create a store), [`ledger`] (ingest, record fixes,
+//! commit), [`query`] (revisions, versions, diff, why, verify) and [`views`] (export, profile,
+//! check, report).
 #![deny(missing_docs)]
 
 pub mod checks;
 pub mod error;
 pub mod hash;
-pub mod history;
 pub mod ingest;
+pub mod ledger;
 pub mod model;
 pub mod profile;
+pub mod query;
 pub mod report;
 pub mod signing;
 pub mod store;
+pub mod table;
+pub mod values;
+pub mod views;
 
 pub use error::{Error, Result};
 

@@ -18,8 +18,7 @@ pub fn reference_path(name: &str) -> PathBuf {
 /// The text of `tests/reference/<name>`.
 pub fn reference_text(name: &str) -> String {
     let path = reference_path(name);
-    std::fs::read_to_string(&path)
-        .unwrap_or_else(|err| panic!("reading {}: {err}", path.display()))
+    std::fs::read_to_string(&path).unwrap_or_else(|err| panic!("reading {}: {err}", path.display()))
 }
 
 /// Parses `tests/reference/<name>` as JSON.

@@ -3,7 +3,7 @@
 //! reads back to the same fields.
 #![no_main]
 
-use emend::ingest::csv::{CsvReader, RawRecord, ReadError, write_record};
+use emend::table::csv::{CsvReader, RawRecord, ReadError, write_record};
 use libfuzzer_sys::fuzz_target;
 
 fuzz_target!(|data: &[u8]| {

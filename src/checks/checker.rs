@@ -14,7 +14,7 @@ use std::collections::{HashMap, HashSet};
 use std::hash::{Hash, Hasher};
 
 use super::error::RuleError;
-use super::report::{
+use super::outcome::{
     CheckReport, ColumnFlag, FlagKind, MAX_EXAMPLES, RuleOutcome, Severity, Violation,
 };
 use super::rules::{
@@ -701,7 +701,8 @@ mod tests {
                      [columns.t]\ntype = \"text\"\n";
         let clean = run(
             rules,
-            "n,x,d,b,t\n1,1.5,2024-02-29,Yes,anything\n-3, 2e3 ,2000-01-01,0,~\n",
+            // 13/01/2024 names one day, so a date rule takes it as the profile does.
+            "n,x,d,b,t\n1,1.5,2024-02-29,Yes,anything\n-3, 2e3 ,13/01/2024,0,~\n",
         );
         assert!(clean.passed());
         assert_eq!(
@@ -736,8 +737,14 @@ mod tests {
         assert_eq!(
             examples(&dirty, "d.type"),
             [
-                (1, "\"2023-02-29\" is not a date written yyyy-mm-dd"),
-                (2, "\"01/02/2024\" is not a date written yyyy-mm-dd")
+                (
+                    1,
+                    "\"2023-02-29\" is not a date (yyyy-mm-dd, or d/m/yyyy that reads one way only)"
+                ),
+                (
+                    2,
+                    "\"01/02/2024\" is not a date (yyyy-mm-dd, or d/m/yyyy that reads one way only)"
+                )
             ]
         );
     }
@@ -1145,7 +1152,7 @@ mod tests {
             proptest::prop_assume!(!matches!((min, max), (Some(lo), Some(hi)) if lo > hi));
             let text = |(y, m, d): (u16, u8, u8)| format!("{y:04}-{m:02}-{d:02}");
             // A day that does not exist is not a date, so no bound can judge it.
-            let real = crate::checks::value::Date::new(x.0, x.1, x.2).is_some();
+            let real = crate::values::Date::new(x.0, x.1, x.2).is_some();
             let expected = real && (min.is_some_and(|lo| x < lo) || max.is_some_and(|hi| x > hi));
             let bounds: Vec<String> = [
                 bound_text("min", min.map(|b| format!("{:?}", text(b)))),

@@ -14,13 +14,13 @@
 
 mod checker;
 mod error;
-mod report;
+mod outcome;
 mod rules;
 mod value;
 
 pub use checker::{Checker, TRACKED_VALUES};
 pub use error::RuleError;
-pub use report::{
+pub use outcome::{
     CheckReport, ColumnFlag, FlagKind, MAX_EXAMPLES, RuleOutcome, Severity, Violation,
 };
 pub use rules::RuleSet;

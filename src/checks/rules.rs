@@ -14,8 +14,9 @@ use toml::Spanned;
 use toml::de::{DeString, DeTable, DeValue};
 
 use super::error::{Pos, RuleError};
-use super::report::Severity;
-use super::value::{Date, Domain, Test, ValueType, parse_date};
+use super::outcome::Severity;
+use super::value::{Domain, Test, ValueType};
+use crate::values::Date;
 
 /// A parsed, checked rules file.
 ///
@@ -577,7 +578,7 @@ fn bounds(table: &Reader<'_, '_, '_>, declared: Option<ValueType>) -> Result<Bou
         let bound = match v.get_ref() {
             DeValue::Integer(_) | DeValue::Float(_) => Bound::Number(doc.number(v, &path)?),
             DeValue::Datetime(_) => Bound::Date(doc.toml_date(v, &path)?),
-            DeValue::String(s) => Bound::Date(parse_date(s).ok_or_else(|| {
+            DeValue::String(s) => Bound::Date(Date::parse_iso(s).ok_or_else(|| {
                 doc.error(
                     v.span(),
                     &path,

@@ -1,12 +1,13 @@
-//! Reading one cell as a number, a date or a boolean, and comparing two values.
+//! The value types a rule can declare, and comparing two values in a domain.
 //!
-//! Everything here works on the text of one cell, trimmed of surrounding whitespace by the
-//! caller, and never allocates. Nothing guesses: thousands separators, `NaN`, `inf`, dates
-//! in any form other than `YYYY-MM-DD` and booleans outside a short fixed list are refused,
-//! so the type rule can report them.
+//! What a number, a date or a boolean is comes from the crate's one cell vocabulary,
+//! [`crate::values`], which the profile uses too. Everything here works on the text of one
+//! cell, trimmed of surrounding whitespace by the caller, and never allocates. Nothing guesses:
+//! thousands separators, `NaN`, `inf`, dates that name no single day and booleans outside a
+//! short fixed list are refused, so the type rule can report them.
 
+use crate::values::{self, Date, is_integer, parse_bool};
 use std::cmp::Ordering;
-use std::fmt;
 
 /// The value types a column rule can declare.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -15,7 +16,7 @@ pub(crate) enum ValueType {
     Integer,
     /// An integer or a plain decimal number, with an optional exponent.
     Decimal,
-    /// An ISO 8601 calendar date `YYYY-MM-DD`.
+    /// A calendar day: ISO 8601 `YYYY-MM-DD`, or a slash date that reads one way only.
     Date,
     /// `true/false/yes/no/y/n/1/0`, case-insensitive.
     Boolean,
@@ -44,7 +45,7 @@ impl ValueType {
         match self {
             ValueType::Integer => "an integer",
             ValueType::Decimal => "a decimal number",
-            ValueType::Date => "a date written yyyy-mm-dd",
+            ValueType::Date => "a date (yyyy-mm-dd, or d/m/yyyy that reads one way only)",
             ValueType::Boolean => "a boolean (true/false, yes/no, y/n, 1/0)",
             ValueType::Text => "text",
         }
@@ -72,94 +73,15 @@ impl ValueType {
     }
 }
 
-/// Whether `text` is an optional sign followed by at least one ASCII digit, and nothing else.
-pub(crate) fn is_integer(text: &str) -> bool {
-    let digits = text.strip_prefix(['+', '-']).unwrap_or(text);
-    !digits.is_empty() && digits.bytes().all(|b| b.is_ascii_digit())
-}
-
-/// Reads a plain decimal number (optional sign, digits with at most one point, optional
-/// exponent) as its nearest `f64`.
-///
-/// `str::parse::<f64>` alone would also take `inf`, `NaN` and `infinity`, which in data
-/// extracts are text (and `NaN` a missing-value token), so the characters are checked first.
+/// A number in the one cell vocabulary ([`crate::values`]).
 pub(crate) fn parse_number(text: &str) -> Option<f64> {
-    let ok_chars = text
-        .bytes()
-        .all(|b| b.is_ascii_digit() || matches!(b, b'+' | b'-' | b'.' | b'e' | b'E'));
-    if !ok_chars || !text.bytes().any(|b| b.is_ascii_digit()) {
-        return None;
-    }
-    text.parse::<f64>().ok().filter(|x| x.is_finite())
+    values::number_value(text)
 }
 
-/// A calendar date, ordered by year, month, day.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord)]
-pub(crate) struct Date {
-    year: u16,
-    month: u8,
-    day: u8,
-}
-
-impl Date {
-    /// A date from its parts, when they name a real day.
-    pub(crate) fn new(year: u16, month: u8, day: u8) -> Option<Date> {
-        (year <= 9999 && (1..=12).contains(&month) && day >= 1 && day <= days_in_month(year, month))
-            .then_some(Date { year, month, day })
-    }
-}
-
-impl fmt::Display for Date {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "{:04}-{:02}-{:02}", self.year, self.month, self.day)
-    }
-}
-
-/// Days in a month of the proleptic Gregorian calendar.
-fn days_in_month(year: u16, month: u8) -> u8 {
-    // Gregorian leap years (common knowledge, from memory): every fourth year, except
-    // centuries not divisible by 400.
-    let leap = (year.is_multiple_of(4) && !year.is_multiple_of(100)) || year.is_multiple_of(400);
-    match month {
-        2 if leap => 29,
-        2 => 28,
-        4 | 6 | 9 | 11 => 30,
-        _ => 31,
-    }
-}
-
-/// Reads an ISO 8601 calendar date in its extended form `YYYY-MM-DD` (ISO 8601, from
-/// memory: four-digit year, two-digit month and day, hyphens), checking that the day exists.
-///
-/// Other ISO 8601 forms (basic `YYYYMMDD`, week and ordinal dates, times, expanded years) are
-/// refused: one written form keeps a date column sortable and unambiguous.
+/// A definite calendar day in the one cell vocabulary: ISO 8601, or a slash date that reads
+/// one way only.
 pub(crate) fn parse_date(text: &str) -> Option<Date> {
-    let b = text.as_bytes();
-    if b.len() != 10 || b[4] != b'-' || b[7] != b'-' {
-        return None;
-    }
-    let digits = |range: std::ops::Range<usize>| -> Option<u16> {
-        b[range].iter().try_fold(0u16, |acc, &c| {
-            c.is_ascii_digit().then(|| acc * 10 + u16::from(c - b'0'))
-        })
-    };
-    let year = digits(0..4)?;
-    let month = u8::try_from(digits(5..7)?).ok()?;
-    let day = u8::try_from(digits(8..10)?).ok()?;
-    Date::new(year, month, day)
-}
-
-/// Reads a boolean: `true/false`, `yes/no`, `y/n`, `1/0`, in any letter case.
-pub(crate) fn parse_bool(text: &str) -> Option<bool> {
-    const TRUE: [&str; 4] = ["true", "yes", "y", "1"];
-    const FALSE: [&str; 4] = ["false", "no", "n", "0"];
-    if TRUE.iter().any(|w| w.eq_ignore_ascii_case(text)) {
-        Some(true)
-    } else if FALSE.iter().any(|w| w.eq_ignore_ascii_case(text)) {
-        Some(false)
-    } else {
-        None
-    }
+    Date::read(text)
 }
 
 /// The way two values are compared.
@@ -301,7 +223,7 @@ mod tests {
         for ok in ["0", "-12", "+7", "00012"] {
             assert!(is_integer(ok), "{ok}");
         }
-        for bad in ["", "-", "1.0", "1e3", "1,000", " 1", "one"] {
+        for bad in ["", "-", "1.0", "1e3", "1,000", "one"] {
             assert!(!is_integer(bad), "{bad}");
         }
     }
@@ -344,11 +266,14 @@ mod tests {
             "20240403",
             "2024/04/03",
             "03-04-2024",
+            "03/04/2024",
             "2024-04-03T10:00",
         ] {
             assert_eq!(parse_date(bad), None, "{bad}");
         }
         assert!(parse_date("2024-01-31") < parse_date("2024-02-01"));
+        // The profile calls this a date, so a date rule does too (one vocabulary).
+        assert_eq!(parse_date("13/01/2024"), parse_date("2024-01-13"));
     }
 
     #[test]

@@ -1,12 +1,14 @@
 //! `rules` (adopt a rules file, signed) and `check` (apply the rules in force to a version).
 
 use super::FixMeta;
-use super::identity;
+use super::context::CliContext;
 use super::out::{self, BAD, BOLD, DIM, GOOD, paint};
 use anyhow::Result;
 use clap::Args;
 use emend::checks::{CheckReport, Severity};
-use emend::history::{self, rules};
+use emend::ledger::adopt;
+use emend::query;
+use emend::views;
 use std::io::Write;
 use std::path::PathBuf;
 
@@ -35,11 +37,11 @@ pub struct CheckArgs {
     json: bool,
 }
 
-pub fn adopt(a: RulesArgs) -> Result<i32> {
-    let mut store = super::open_store()?;
-    let id = identity::load()?;
-    let ctx = id.context(super::now()?);
-    let done = rules::adopt(
+pub fn adopt(cx: &CliContext, a: RulesArgs) -> Result<i32> {
+    let mut store = cx.store()?;
+    let id = cx.identity()?;
+    let ctx = id.context(cx.now()?);
+    let done = adopt::adopt(
         &mut store,
         &a.table,
         &a.file,
@@ -61,19 +63,19 @@ pub fn adopt(a: RulesArgs) -> Result<i32> {
     Ok(0)
 }
 
-pub fn check(a: CheckArgs) -> Result<i32> {
-    let store = super::open_store()?;
+pub fn check(cx: &CliContext, a: CheckArgs) -> Result<i32> {
+    let store = cx.store()?;
     let reader = store.read();
-    let rev = history::resolve(&reader, &a.at)?;
-    let version = history::version_at(&reader, &a.table, rev)?;
+    let rev = query::resolve(&reader, &a.at)?;
+    let version = query::version_at(&reader, &a.table, rev)?;
     let (source, text) = match &a.rules {
         Some(p) => (
             format!("{} (not adopted)", p.display()),
-            rules::read_text(p)?,
+            adopt::read_text(p)?,
         ),
         None => {
             let upto = if rev.raw { version.seq } else { rev.seq };
-            match rules::rules_at(&reader, &a.table, upto)? {
+            match query::rules_at(&reader, &a.table, upto)? {
                 Some((seq, name, text)) => (format!("{name} (adopted in commit {seq})"), text),
                 None => anyhow::bail!(
                     "no rules adopted for '{}' by commit {upto}; adopt a file with 'emend rules {} FILE --why ...', or try one with --rules FILE",
@@ -84,8 +86,8 @@ pub fn check(a: CheckArgs) -> Result<i32> {
         }
     };
     let path = a.rules.clone().unwrap_or_else(|| PathBuf::from(&source));
-    let ruleset = rules::parse_for(&path, &text, version.header())?;
-    let report = rules::check_version(&reader, &version, &ruleset)?;
+    let ruleset = adopt::parse_for(&path, &text, version.header())?;
+    let report = views::check_version(&reader, &version, &ruleset)?;
     let label = if rev.raw {
         "raw".to_string()
     } else {

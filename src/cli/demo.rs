@@ -1,14 +1,16 @@
 //! `emend demo`: build a store from the bundled demo extract (a fictional volunteer
 //! river-monitoring network, invented data) and record a realistic cleaning pass.
 
-use super::identity;
+use super::context::CliContext;
 use super::out::{self, BOLD, DIM, GOOD, paint};
 use anyhow::{Context, Result, bail};
 use clap::Args;
-use emend::history::{self, FixRequest};
 use emend::ingest::IngestOptions;
+use emend::ledger::{self, FixRequest};
 use emend::model::{Change, FixAction, RowId};
+use emend::query;
 use emend::store::Store;
+use emend::views;
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
@@ -57,7 +59,7 @@ struct Step<'a> {
 }
 
 fn fix(store: &mut Store, now: &str, step: Step<'_>) -> Result<()> {
-    history::record_fix(
+    ledger::record_fix(
         store,
         FixRequest {
             table: "samples".into(),
@@ -71,11 +73,11 @@ fn fix(store: &mut Store, now: &str, step: Step<'_>) -> Result<()> {
     Ok(())
 }
 
-pub fn run(a: DemoArgs) -> Result<i32> {
+pub fn run(cx: &CliContext, a: DemoArgs) -> Result<i32> {
     let dir = fresh_dir(a.dir)?;
     let home = dir.join(".demo-identity");
-    let id = identity::create(&home, "Demo Steward", Some("steward@riverwatch.example"))?;
-    let now = super::now()?;
+    let id = super::id::create(&home, "Demo Steward", Some("steward@riverwatch.example"))?;
+    let now = cx.now()?;
     let extract = dir.join("field_samples.csv");
     std::fs::write(&extract, DEMO_CSV)?;
     let rules_file = dir.join("rules.toml");
@@ -85,9 +87,9 @@ pub fn run(a: DemoArgs) -> Result<i32> {
 
     let mut store = Store::init(&dir, &now)?;
     let key = id.signer.public_key();
-    history::trust(&mut store, &key, &id.name, id.email.as_deref(), &now)?;
+    ledger::trust(&mut store, &key, &id.name, id.email.as_deref(), &now)?;
     let ctx = id.context(now.clone());
-    let (ingested, _) = history::ingest(
+    let (ingested, _) = ledger::ingest(
         &mut store,
         &extract,
         &IngestOptions {
@@ -99,7 +101,7 @@ pub fn run(a: DemoArgs) -> Result<i32> {
         &ctx,
     )?;
 
-    let adopted = history::rules::adopt(
+    let adopted = ledger::adopt::adopt(
         &mut store,
         "samples",
         &rules_file,
@@ -145,7 +147,7 @@ pub fn run(a: DemoArgs) -> Result<i32> {
             consulted: None,
         },
     )?;
-    let first = history::commit_pending(&mut store, "Site names and missing-value codes", &ctx)?;
+    let first = ledger::commit_pending(&mut store, "Site names and missing-value codes", &ctx)?;
 
     fix(
         &mut store,
@@ -231,9 +233,8 @@ pub fn run(a: DemoArgs) -> Result<i32> {
             consulted: Some("app maintainer"),
         },
     )?;
-    let second = history::commit_pending(&mut store, "First cleaning pass", &ctx)?;
-    let report =
-        history::verify::verify(&store.read(), &history::verify::Trust::Store, &mut |_| {})?;
+    let second = ledger::commit_pending(&mut store, "First cleaning pass", &ctx)?;
+    let report = query::verify::verify(&store.read(), &query::verify::Trust::Store, &mut |_| {})?;
     if !report.is_clean() {
         bail!("the demo store does not verify: {:?}", report.problems);
     }
@@ -252,18 +253,18 @@ pub fn run(a: DemoArgs) -> Result<i32> {
     )?;
     let reader = store.read();
     let at = |raw: bool| {
-        history::version_at(
+        query::version_at(
             &reader,
             "samples",
-            history::Rev {
+            query::Rev {
                 seq: second.seq,
                 raw,
             },
         )
     };
-    let ruleset = history::rules::parse_for(&rules_file, DEMO_RULES, at(false)?.header())?;
+    let ruleset = ledger::adopt::parse_for(&rules_file, DEMO_RULES, at(false)?.header())?;
     let errors = |raw: bool| -> Result<u64> {
-        let report = history::rules::check_version(&reader, &at(raw)?, &ruleset)?;
+        let report = views::check_version(&reader, &at(raw)?, &ruleset)?;
         Ok(report.count(emend::checks::Severity::Error))
     };
     writeln!(

@@ -2,11 +2,13 @@
 //! its reason; nothing changes in history until `emend commit`.
 
 use super::FixMeta;
+use super::context::CliContext;
 use super::out::{self, BOLD, DIM, GOOD, paint};
 use anyhow::{Context, Result, bail};
 use clap::Args;
-use emend::history::{self, FixRequest};
+use emend::ledger::{self, FixRequest};
 use emend::model::{Fix, FixAction};
+use emend::query;
 use std::io::Write;
 use std::path::PathBuf;
 
@@ -88,9 +90,9 @@ pub struct DistrustArgs {
     meta: FixMeta,
 }
 
-fn record(table: String, action: FixAction, meta: FixMeta) -> Result<i32> {
-    let mut store = super::open_store()?;
-    let now = super::now()?;
+fn record(cx: &CliContext, table: String, action: FixAction, meta: FixMeta) -> Result<i32> {
+    let mut store = cx.store()?;
+    let now = cx.now()?;
     let req = FixRequest {
         table,
         action,
@@ -98,7 +100,7 @@ fn record(table: String, action: FixAction, meta: FixMeta) -> Result<i32> {
         evidence: meta.evidence,
         consulted: meta.consulted,
     };
-    let recorded = history::record_fix(&mut store, req, &now)?;
+    let recorded = ledger::record_fix(&mut store, req, &now)?;
     let mut o = out::stdout();
     writeln!(
         o,
@@ -112,19 +114,20 @@ fn record(table: String, action: FixAction, meta: FixMeta) -> Result<i32> {
     Ok(0)
 }
 
-fn row_id(table: &str, text: &str) -> Result<emend::model::RowId> {
-    let store = super::open_store()?;
-    Ok(history::parse_row(&store.read(), table, text)?)
+fn row_id(cx: &CliContext, table: &str, text: &str) -> Result<emend::model::RowId> {
+    let store = cx.store()?;
+    Ok(query::parse_row(&store.read(), table, text)?)
 }
 
-pub fn set(a: SetArgs) -> Result<i32> {
+pub fn set(cx: &CliContext, a: SetArgs) -> Result<i32> {
     let value = match (a.value, a.missing) {
         (Some(v), false) => Some(v),
         (None, true) => None,
         _ => bail!("give the new VALUE, or --missing to set the cell to missing"),
     };
-    let row = row_id(&a.table, &a.row)?;
+    let row = row_id(cx, &a.table, &a.row)?;
     record(
+        cx,
         a.table,
         FixAction::Set {
             row,
@@ -137,17 +140,17 @@ pub fn set(a: SetArgs) -> Result<i32> {
 
 fn read_map(path: &std::path::Path) -> Result<Vec<(String, String)>> {
     let file = emend::ingest::open_input(path)?;
-    let mut reader = emend::ingest::csv::CsvReader::new(file, b',');
-    let mut rec = emend::ingest::csv::RawRecord::default();
+    let mut reader = emend::table::csv::CsvReader::new(file, b',');
+    let mut rec = emend::table::csv::RawRecord::default();
     let mut pairs = Vec::new();
     loop {
         match reader.read_record(&mut rec) {
             Ok(true) => {}
             Ok(false) => break,
-            Err(emend::ingest::csv::ReadError::Csv(e)) => {
+            Err(emend::table::csv::ReadError::Csv(e)) => {
                 bail!("{}:{}:{}: {}", path.display(), e.line, e.column, e.problem)
             }
-            Err(emend::ingest::csv::ReadError::Io(e)) => {
+            Err(emend::table::csv::ReadError::Io(e)) => {
                 return Err(e).with_context(|| format!("reading {}", path.display()));
             }
         }
@@ -181,13 +184,14 @@ fn read_map(path: &std::path::Path) -> Result<Vec<(String, String)>> {
     Ok(pairs)
 }
 
-pub fn recode(a: RecodeArgs) -> Result<i32> {
+pub fn recode(cx: &CliContext, a: RecodeArgs) -> Result<i32> {
     let pairs = match (a.from, a.to, &a.map) {
         (Some(f), Some(t), None) => vec![(f, t)],
         (None, None, Some(map)) => read_map(map)?,
         _ => bail!("give --from VALUE --to VALUE, or --map FILE"),
     };
     record(
+        cx,
         a.table,
         FixAction::Recode {
             column: a.column,
@@ -197,8 +201,9 @@ pub fn recode(a: RecodeArgs) -> Result<i32> {
     )
 }
 
-pub fn missing(a: MissingArgs) -> Result<i32> {
+pub fn missing(cx: &CliContext, a: MissingArgs) -> Result<i32> {
     record(
+        cx,
         a.table,
         FixAction::Missing {
             column: a.column,
@@ -208,13 +213,18 @@ pub fn missing(a: MissingArgs) -> Result<i32> {
     )
 }
 
-pub fn exclude(a: ExcludeArgs) -> Result<i32> {
-    let row = row_id(&a.table, &a.row)?;
-    record(a.table, FixAction::Exclude { row }, a.meta)
+pub fn exclude(cx: &CliContext, a: ExcludeArgs) -> Result<i32> {
+    let row = row_id(cx, &a.table, &a.row)?;
+    record(cx, a.table, FixAction::Exclude { row }, a.meta)
 }
 
-pub fn distrust(a: DistrustArgs) -> Result<i32> {
-    record(a.table, FixAction::Distrust { column: a.column }, a.meta)
+pub fn distrust(cx: &CliContext, a: DistrustArgs) -> Result<i32> {
+    record(
+        cx,
+        a.table,
+        FixAction::Distrust { column: a.column },
+        a.meta,
+    )
 }
 
 /// Print one fix for people.

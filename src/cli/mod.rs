@@ -1,16 +1,25 @@
-//! The command line: argument parsing, one module per group of subcommands, human and JSON
-//! output. The only code that prints, reads environment variables or uses clap and anyhow.
+//! The command line: argument parsing, one module per command or group of commands (named after
+//! them), human and JSON output. The only code that prints, reads environment variables or uses
+//! clap and anyhow; the environment is read once, into the [`CliContext`] each command gets.
 
-mod audit;
 mod check;
+mod commit;
+mod context;
 mod demo;
+mod diff;
+mod export;
 mod fixes;
-mod identity;
-mod look;
+mod id;
+mod ingest;
 mod out;
 mod profile;
-mod record;
+mod show;
+mod tag;
 mod trust;
+mod verify;
+mod why;
+
+use context::CliContext;
 
 use anyhow::Result;
 use clap::{Args, Parser, Subcommand};
@@ -47,11 +56,11 @@ enum Command {
     #[command(subcommand)]
     Id(IdCommand),
     /// Store a raw extract (CSV or TSV) as a new signed commit
-    Ingest(record::IngestArgs),
+    Ingest(ingest::IngestArgs),
     /// List the tables and their newest extracts
     Tables(JsonFlag),
     /// Print rows of a table version
-    Show(look::ShowArgs),
+    Show(show::ShowArgs),
     /// Find what needs cleaning: types, missing codes, outliers, spellings, suspect columns
     Profile(profile::ProfileArgs),
     /// Set one cell to a value (or to missing)
@@ -76,27 +85,27 @@ enum Command {
     /// Drop every pending fix
     Discard,
     /// Replay the fixes made on a table's previous extract onto its newest one
-    Carry(record::CarryArgs),
+    Carry(commit::CarryArgs),
     /// Sign and commit the pending fixes
-    Commit(record::CommitArgs),
+    Commit(commit::CommitArgs),
     /// List commits, newest last
-    Log(look::LogArgs),
+    Log(show::LogArgs),
     /// Every changed cell, row and mark between two versions
-    Diff(audit::DiffArgs),
+    Diff(diff::DiffArgs),
     /// The life of one value (or row, or column): every fix, who, when, why
-    Why(audit::WhyArgs),
+    Why(why::WhyArgs),
     /// Name a commit with a signed tag
-    Tag(audit::TagArgs),
+    Tag(tag::TagArgs),
     /// List tags
     Tags(JsonFlag),
     /// Write a table version as CSV (or the raw extract bytes)
-    Export(look::ExportArgs),
+    Export(export::ExportArgs),
     /// Write one self-contained HTML report of a version for an auditor
-    Report(look::ReportArgs),
+    Report(export::ReportArgs),
     /// Vouch for another signing key in a signed commit (key rotation, a new colleague)
     Trust(trust::TrustArgs),
     /// Check every hash, signature, table version and index row
-    Verify(trust::VerifyArgs),
+    Verify(verify::VerifyArgs),
     /// Build a store from bundled demo data and record a cleaning pass
     Demo(demo::DemoArgs),
 }
@@ -104,7 +113,7 @@ enum Command {
 #[derive(Subcommand, Debug)]
 enum IdCommand {
     /// Make a new Ed25519 signing identity
-    New(identity::NewArgs),
+    New(id::NewArgs),
     /// Show your identity and whether this store trusts it
     Show(JsonFlag),
 }
@@ -165,56 +174,35 @@ fn is_broken_pipe(err: &anyhow::Error) -> bool {
 }
 
 fn run(cli: Cli) -> Result<i32> {
+    let cx = &CliContext::from_env()?;
     match cli.command {
-        Command::Init => record::init(),
-        Command::Id(IdCommand::New(a)) => identity::new(a),
-        Command::Id(IdCommand::Show(f)) => identity::show(f.json),
-        Command::Ingest(a) => record::ingest(a),
-        Command::Tables(f) => look::tables(f.json),
-        Command::Show(a) => look::show(a),
-        Command::Profile(a) => profile::run(a),
-        Command::Set(a) => fixes::set(a),
-        Command::Recode(a) => fixes::recode(a),
-        Command::Missing(a) => fixes::missing(a),
-        Command::Exclude(a) => fixes::exclude(a),
-        Command::Distrust(a) => fixes::distrust(a),
-        Command::Status(f) => record::status(f.json),
-        Command::Discard => record::discard(),
-        Command::Rules(a) => check::adopt(a),
-        Command::Check(a) => check::check(a),
-        Command::Carry(a) => record::carry(a),
-        Command::Commit(a) => record::commit(a),
-        Command::Log(a) => look::log(a),
-        Command::Export(a) => look::export(a),
-        Command::Diff(a) => audit::diff_cmd(a),
-        Command::Why(a) => audit::why_cmd(a),
-        Command::Tag(a) => audit::tag_cmd(a),
-        Command::Tags(f) => audit::tags_cmd(f.json),
-        Command::Verify(a) => trust::verify(a),
-        Command::Trust(a) => trust::trust_key(a),
-        Command::Report(a) => look::report(a),
-        Command::Demo(a) => demo::run(a),
+        Command::Init => ingest::init(cx),
+        Command::Id(IdCommand::New(a)) => id::new(cx, a),
+        Command::Id(IdCommand::Show(f)) => id::show(cx, f.json),
+        Command::Ingest(a) => ingest::ingest(cx, a),
+        Command::Tables(f) => show::tables(cx, f.json),
+        Command::Show(a) => show::show(cx, a),
+        Command::Profile(a) => profile::run(cx, a),
+        Command::Set(a) => fixes::set(cx, a),
+        Command::Recode(a) => fixes::recode(cx, a),
+        Command::Missing(a) => fixes::missing(cx, a),
+        Command::Exclude(a) => fixes::exclude(cx, a),
+        Command::Distrust(a) => fixes::distrust(cx, a),
+        Command::Status(f) => commit::status(cx, f.json),
+        Command::Discard => commit::discard(cx),
+        Command::Rules(a) => check::adopt(cx, a),
+        Command::Check(a) => check::check(cx, a),
+        Command::Carry(a) => commit::carry(cx, a),
+        Command::Commit(a) => commit::commit(cx, a),
+        Command::Log(a) => show::log(cx, a),
+        Command::Export(a) => export::export(cx, a),
+        Command::Diff(a) => diff::diff_cmd(cx, a),
+        Command::Why(a) => why::why_cmd(cx, a),
+        Command::Tag(a) => tag::tag_cmd(cx, a),
+        Command::Tags(f) => tag::tags_cmd(cx, f.json),
+        Command::Verify(a) => verify::verify(cx, a),
+        Command::Trust(a) => trust::trust_key(cx, a),
+        Command::Report(a) => export::report(cx, a),
+        Command::Demo(a) => demo::run(cx, a),
     }
-}
-
-/// The time to record: `EMEND_NOW` when set (for reproducible runs), else the clock, in UTC.
-pub fn now() -> Result<String> {
-    if let Ok(fixed) = std::env::var("EMEND_NOW") {
-        let parsed = chrono::DateTime::parse_from_rfc3339(&fixed).map_err(|e| {
-            anyhow::anyhow!(
-                "EMEND_NOW='{fixed}' is not an RFC 3339 time ({e}); e.g. 2026-10-01T09:00:00Z"
-            )
-        })?;
-        return Ok(parsed
-            .with_timezone(&chrono::Utc)
-            .format("%Y-%m-%dT%H:%M:%SZ")
-            .to_string());
-    }
-    Ok(chrono::Utc::now().format("%Y-%m-%dT%H:%M:%SZ").to_string())
-}
-
-/// Open the store for the current folder.
-pub fn open_store() -> Result<emend::store::Store> {
-    let cwd = std::env::current_dir()?;
-    Ok(emend::store::Store::discover(&cwd)?)
 }

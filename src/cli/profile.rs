@@ -1,14 +1,16 @@
 //! `profile`: what needs cleaning in a table version, worst first, each finding with a ready
 //! command line to edit and run. Nothing is changed.
 
+use super::context::CliContext;
 use super::out::{self, BAD, BOLD, DIM, paint, shell_quote};
 use anyhow::Result;
 use clap::Args;
-use emend::history::{self, profile::profile_version};
 use emend::profile::{
     ColumnProfile, Finding, FixSuggestion, Flag, ProfileOptions, Severity, TableOptions,
     text_boxplot, text_histogram,
 };
+use emend::query;
+use emend::views::profiling::profile_version;
 use std::io::Write;
 
 #[derive(Args, Debug)]
@@ -143,11 +145,11 @@ fn figures(c: &ColumnProfile) -> String {
     }
 }
 
-pub fn run(a: ProfileArgs) -> Result<i32> {
-    let store = super::open_store()?;
+pub fn run(cx: &CliContext, a: ProfileArgs) -> Result<i32> {
+    let store = cx.store()?;
     let reader = store.read();
-    let rev = history::resolve(&reader, &a.at)?;
-    let version = history::version_at(&reader, &a.table, rev)?;
+    let rev = query::resolve(&reader, &a.at)?;
+    let version = query::version_at(&reader, &a.table, rev)?;
     if let Some(c) = &a.col {
         version.col_idx(c)?;
     }
@@ -218,7 +220,7 @@ pub fn run(a: ProfileArgs) -> Result<i32> {
                 if !row.excluded
                     && let Some(v) = row.cells[idx]
                         .as_deref()
-                        .and_then(|t| t.trim().parse::<f64>().ok())
+                        .and_then(emend::values::number_value)
                 {
                     values.push(v);
                 }

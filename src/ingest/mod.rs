@@ -6,24 +6,18 @@
 //! canonical version hash. Memory stays at a few pieces plus 8 bytes per row for the key check.
 //! Any problem aborts the surrounding transaction, so a bad file leaves the store unchanged.
 
-pub mod csv;
-
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, ChunkId, Digest, VersionHash};
-use crate::history::version::VersionHashBuilder;
 use crate::model::{Dialect, IngestRecord, RowId, TextEncoding};
-use crate::store::{ChunkCache, Store, WriteTx};
-use csv::{CsvReader, RawRecord, ReadError};
+use crate::store::{ChunkCache, DeltaBase, EncodedPiece, PIECE_SIZE, PieceEncoder, Store, WriteTx};
+use crate::table::csv::{CsvReader, RawRecord, ReadError};
+use crate::table::{RowIdBuilder, VersionHashBuilder, decode_into, guess_delimiter};
 use std::fs::File;
 use std::hash::{BuildHasher, Hasher};
 use std::io::Read;
 use std::path::{Path, PathBuf};
 use std::sync::mpsc;
 
-/// Size of a stored piece of an extract.
-pub const PIECE_SIZE: usize = 1 << 20;
-/// zstd level for pieces: level 1 is as small as 3 on CSV and much faster.
-const ZSTD_LEVEL: i32 = 1;
 /// How many duplicate or offending keys an error lists.
 const LIST_AT_MOST: usize = 5;
 
@@ -51,52 +45,6 @@ pub struct IngestOutcome {
     pub blank_lines: u64,
     /// Compressed bytes newly written (pieces already stored cost nothing).
     pub new_bytes: u64,
-}
-
-/// Decode one field in `encoding` into `out` (cleared first).
-///
-/// On invalid UTF-8 returns the index of the first bad byte within the field.
-pub fn decode_into(bytes: &[u8], encoding: TextEncoding, out: &mut String) -> Result<(), usize> {
-    out.clear();
-    match encoding {
-        TextEncoding::Utf8 => match std::str::from_utf8(bytes) {
-            Ok(s) => {
-                out.push_str(s);
-                Ok(())
-            }
-            Err(e) => Err(e.valid_up_to()),
-        },
-        TextEncoding::Latin1 => {
-            out.extend(bytes.iter().map(|&b| char::from(b)));
-            Ok(())
-        }
-        TextEncoding::Windows1252 => {
-            let (text, _) = encoding_rs::WINDOWS_1252.decode_without_bom_handling(bytes);
-            out.push_str(&text);
-            Ok(())
-        }
-    }
-}
-
-/// Guess the delimiter from the file name and the first line.
-pub fn guess_delimiter(path: &Path, first_bytes: &[u8]) -> u8 {
-    let ext = path
-        .extension()
-        .and_then(|e| e.to_str())
-        .map(str::to_ascii_lowercase);
-    if matches!(ext.as_deref(), Some("tsv" | "tab")) {
-        return b'\t';
-    }
-    let line_end = memchr::memchr(b'\n', first_bytes).unwrap_or(first_bytes.len());
-    let line = &first_bytes[..line_end];
-    let mut best = (b',', 0usize);
-    for cand in [b',', b'\t', b';', b'|'] {
-        let n = line.iter().filter(|&&b| b == cand).count();
-        if n > best.1 {
-            best = (cand, n);
-        }
-    }
-    best.0
 }
 
 /// Reads the file, feeding the whole-file hash and the piece pipeline.
@@ -141,15 +89,6 @@ impl Read for Tee {
     }
 }
 
-struct Piece {
-    id: ChunkId,
-    raw_len: u64,
-    codec: u8,
-    base: Option<(BlobId, u64, u64)>,
-    /// `None` when the store already holds this piece.
-    compressed: Option<Vec<u8>>,
-}
-
 /// The table's previous extract, against which new pieces are stored as deltas.
 #[derive(Clone)]
 struct Previous {
@@ -165,15 +104,15 @@ const DELTA_MARGIN: u64 = 256 * 1024;
 
 fn compress_worker(
     rx: mpsc::Receiver<Vec<u8>>,
-    tx: mpsc::Sender<Result<Piece>>,
+    tx: mpsc::Sender<Result<EncodedPiece>>,
     previous: Option<Previous>,
 ) {
-    let fail = |tx: &mpsc::Sender<Result<Piece>>, e: Error| {
+    let fail = |tx: &mpsc::Sender<Result<EncodedPiece>>, e: Error| {
         let _ = tx.send(Err(e));
     };
-    let mut compressor = match zstd::bulk::Compressor::new(ZSTD_LEVEL) {
+    let mut encoder = match PieceEncoder::new() {
         Ok(c) => c,
-        Err(e) => return fail(&tx, Error::io("<compressor>", e)),
+        Err(e) => return fail(&tx, e),
     };
     // A second, read-only connection: the writer's transaction is open on the main thread, and
     // WAL lets this one read the committed previous extract meanwhile.
@@ -187,51 +126,30 @@ fn compress_worker(
     let mut cache = ChunkCache::default();
     let mut offset = 0u64;
     for piece in rx {
-        let id = ChunkId(Digest::of(&piece));
         let raw_len = piece.len() as u64;
         let start = offset;
         offset += raw_len;
-        let result = (|| -> Result<Piece> {
-            let mut out = Piece {
-                id,
-                raw_len,
-                codec: 1,
-                base: None,
-                compressed: None,
-            };
-            let plain = |c: &mut zstd::bulk::Compressor<'_>| {
-                c.compress(&piece).map_err(|e| Error::io("<compressor>", e))
-            };
+        let result = (|| -> Result<EncodedPiece> {
             let Some((store, prev)) = &reference else {
-                out.compressed = Some(plain(&mut compressor)?);
-                return Ok(out);
+                return encoder.plain(&piece);
             };
             let reader = store.read();
-            if reader.has_chunk(&id)? {
-                return Ok(out);
+            let known = PieceEncoder::known(&piece);
+            if reader.has_chunk(&known.id)? {
+                return Ok(known);
             }
             let lo = start.saturating_sub(DELTA_MARGIN).min(prev.n_bytes);
             let hi = (start + raw_len + DELTA_MARGIN).min(prev.n_bytes);
             if hi <= lo {
-                out.compressed = Some(plain(&mut compressor)?);
-                return Ok(out);
+                return encoder.plain(&piece);
             }
             let prefix = reader.blob_range(&prev.extract, lo, hi, &mut cache)?;
-            let delta = crate::store::delta_compress(&piece, &prefix, ZSTD_LEVEL)
-                .map_err(|e| Error::io("<compressor>", e))?;
-            // A weak delta (an unrelated extract) is kept only if it still beats plain zstd,
-            // so unrelated files do not grow long reference chains.
-            if delta.len() as u64 > raw_len / 8 {
-                let p = plain(&mut compressor)?;
-                if p.len() <= delta.len() {
-                    out.compressed = Some(p);
-                    return Ok(out);
-                }
-            }
-            out.codec = 2;
-            out.base = Some((prev.extract, lo, hi));
-            out.compressed = Some(delta);
-            Ok(out)
+            let base = DeltaBase {
+                blob: prev.extract,
+                lo,
+                hi,
+            };
+            encoder.delta(&piece, &prefix, base)
         })();
         if tx.send(result).is_err() {
             return;
@@ -336,11 +254,11 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
                 }
             };
             let piece = next?;
-            if let Some(data) = &piece.compressed
+            if let Some(data) = &piece.data
                 && !tx.read().has_chunk(&piece.id)?
             {
                 *new_bytes += data.len() as u64;
-                tx.put_chunk(&piece.id, piece.raw_len, piece.codec, piece.base, data)?;
+                tx.put_piece(&piece)?;
             }
             chunks.push(piece.id);
         }
@@ -409,6 +327,7 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
         let mut blank_lines = 0u64;
         let mut cells: Vec<String> = vec![String::new(); header.len()];
         let mut row_id = String::new();
+        let row_ids = RowIdBuilder::new(key_idx.clone());
         loop {
             if !reader
                 .read_record(&mut rec)
@@ -438,25 +357,16 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
                 decode_into(field, encoding, &mut cells[i])
                     .map_err(|at| utf8_error(path, &rec, i, at))?;
             }
-            row_id.clear();
-            if key_idx.is_empty() {
-                use std::fmt::Write;
-                let _ = write!(row_id, "{n_rows}");
-            } else {
-                for (j, &k) in key_idx.iter().enumerate() {
-                    if cells[k].trim().is_empty() {
-                        return Err(bad(
-                            path,
-                            rec.line,
-                            k as u64 + 1,
-                            format!("key column '{}' is blank", header[k]),
-                        ));
-                    }
-                    if j > 0 {
-                        row_id.push(crate::model::KEY_SEPARATOR);
-                    }
-                    row_id.push_str(&cells[k]);
-                }
+            if let Some(&k) = key_idx.iter().find(|&&k| cells[k].trim().is_empty()) {
+                return Err(bad(
+                    path,
+                    rec.line,
+                    k as u64 + 1,
+                    format!("key column '{}' is blank", header[k]),
+                ));
+            }
+            row_ids.build_into(n_rows, &cells, &mut row_id);
+            if row_ids.is_keyed() {
                 let mut h = build.build_hasher();
                 h.write(row_id.as_bytes());
                 key_hashes.push(h.finish());
@@ -608,7 +518,8 @@ fn list_duplicates(
     let mut reader = CsvReader::new(open_input(path)?, delimiter);
     let mut rec = RawRecord::default();
     let mut first = true;
-    let mut text = String::new();
+    let mut cells = vec![String::new(); header.len()];
+    let row_ids = RowIdBuilder::new(key_idx.to_vec());
     while reader
         .read_record(&mut rec)
         .map_err(|e| csv_error(path, e))?
@@ -617,15 +528,12 @@ fn list_duplicates(
             first = false;
             continue;
         }
-        let mut key = String::new();
-        for (j, &k) in key_idx.iter().enumerate() {
-            decode_into(rec.get(k).unwrap_or_default(), encoding, &mut text)
+        for &k in key_idx {
+            decode_into(rec.get(k).unwrap_or_default(), encoding, &mut cells[k])
                 .map_err(|at| utf8_error(path, &rec, k, at))?;
-            if j > 0 {
-                key.push(crate::model::KEY_SEPARATOR);
-            }
-            key.push_str(&text);
         }
+        let mut key = String::new();
+        row_ids.build_into(0, &cells, &mut key);
         let mut h = build.build_hasher();
         h.write(key.as_bytes());
         if wanted.contains(&h.finish()) {

@@ -35,7 +35,6 @@ pub mod levels;
 pub mod render;
 pub mod stats;
 pub mod table;
-#[cfg(test)]
 pub mod types;
 
 pub use column::{ColumnProfile, ColumnProfiler, Counts, Flag, LevelFreq, ProfileOptions};

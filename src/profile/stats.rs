@@ -517,8 +517,8 @@ pub fn summarize(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::testdata::{exact_fraction, f64s, reference, strd_data};
     use crate::profile::types::parse_number;
+    use crate::testdata::{exact_fraction, f64s, reference, strd_data};
 
     /// Log relative error, NIST's count of agreeing significant digits, capped at 15.
     fn lre(computed: f64, certified: f64) -> f64 {

@@ -1,14 +1,14 @@
-//! Rules files in history: adopting one is a signed commit with a reason, and `check` applies
-//! the rules in force at a revision (or a file not yet adopted) to that revision's version.
+//! Adopting a rules file: a signed commit with a reason, after the file parses and names only
+//! columns the table has. Reading the rules in force is [`crate::query::rules_at`]; checking a
+//! version is [`crate::views::check_version`].
 
-use super::version::Version;
-use super::{CommitContext, CommitOutcome, decode, seal, store_file};
-use crate::checks::{CheckReport, Checker, RuleSet};
+use super::fixes::store_file;
+use super::seal::{CommitContext, CommitOutcome, seal};
+use crate::checks::{Checker, RuleSet};
 use crate::error::{Error, Result};
 use crate::model::{Change, Evidence, Fix, FixAction, FixRecord};
-use crate::store::{Reader, Store};
-use std::io::Read;
-use std::ops::ControlFlow;
+use crate::query::Version;
+use crate::store::Store;
 use std::path::{Path, PathBuf};
 
 /// Parse a rules file and check it names only columns of `header`; errors name the file,
@@ -93,60 +93,4 @@ fn file_name(p: &Path) -> String {
     p.file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_default()
-}
-
-/// The rules in force for `table` at commit `seq`: (the commit that adopted them, file name,
-/// text), or `None` when no rules were adopted by then.
-pub fn rules_at(
-    reader: &Reader<'_>,
-    table: &str,
-    seq: u64,
-) -> Result<Option<(u64, String, String)>> {
-    for s in (1..=seq).rev() {
-        let Some(stored) = reader.try_commit(s)? else {
-            continue;
-        };
-        if let Change::Fixes(list) = decode(&stored)?.change {
-            for r in list.into_iter().rev() {
-                if let (
-                    true,
-                    FixAction::Rules {
-                        file_name, blob, ..
-                    },
-                ) = (r.fix.table == table, r.fix.action)
-                {
-                    let mut text = String::new();
-                    reader
-                        .open_blob(&blob)?
-                        .read_to_string(&mut text)
-                        .map_err(|e| {
-                            Error::Corrupt(format!(
-                                "rules file {file_name} ({}) does not read: {e}",
-                                blob.short()
-                            ))
-                        })?;
-                    return Ok(Some((s, file_name, text)));
-                }
-            }
-        }
-    }
-    Ok(None)
-}
-
-/// Check a version against rules, streaming its rows (excluded rows left out).
-pub fn check_version(
-    reader: &Reader<'_>,
-    version: &Version,
-    rules: &RuleSet,
-) -> Result<CheckReport> {
-    let mut checker =
-        Checker::new(rules, version.header()).map_err(|e| Error::Invalid(e.to_string()))?;
-    version.for_each_row(reader, |row| {
-        if !row.excluded {
-            let cells: Vec<Option<&str>> = row.cells.iter().map(|c| c.as_deref()).collect();
-            checker.push_row(row.pos, &row.id.to_string(), &cells);
-        }
-        Ok(ControlFlow::Continue(()))
-    })?;
-    Ok(checker.finish())
 }

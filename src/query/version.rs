@@ -1,12 +1,13 @@
 //! A table version: an extract plus the net effect of the fixes up to one commit, streamed row
 //! by row. Memory is O(edits + one row), never O(table).
 
+use super::commits::ingest_record;
 use crate::error::{Error, Result};
-use crate::hash::{VersionHash, VersionHasher};
-use crate::ingest::csv::{CsvReader, RawRecord, ReadError};
-use crate::ingest::decode_into;
-use crate::model::{IngestRecord, KEY_SEPARATOR, RowId};
+use crate::hash::VersionHash;
+use crate::model::{IngestRecord, RowId};
 use crate::store::Reader;
+use crate::table::csv::{CsvReader, RawRecord, ReadError};
+use crate::table::{RowIdBuilder, VersionHashBuilder, decode_into};
 use std::collections::{HashMap, HashSet};
 use std::ops::ControlFlow;
 
@@ -55,7 +56,7 @@ impl Version {
         let (ingest_seq, _) = reader
             .extract_at(table, seq)?
             .ok_or_else(|| Error::UnknownTable(table.to_string()))?;
-        let def = super::ingest_record(reader, ingest_seq)?;
+        let def = ingest_record(reader, ingest_seq)?;
         let mut v = Version {
             table: table.to_string(),
             seq,
@@ -165,12 +166,13 @@ impl Version {
         // The header was validated at ingest.
         read(&mut csv, &mut rec)?;
         let n_cols = self.def.header.len();
-        let key_idx: Vec<usize> = self
-            .def
-            .key
-            .iter()
-            .map(|k| self.col_idx(k))
-            .collect::<Result<_>>()?;
+        let row_ids = RowIdBuilder::new(
+            self.def
+                .key
+                .iter()
+                .map(|k| self.col_idx(k))
+                .collect::<Result<_>>()?,
+        );
         let mut text: Vec<String> = vec![String::new(); n_cols];
         let mut cells: Vec<Option<String>> = vec![None; n_cols];
         let mut id = RowId(String::new());
@@ -192,18 +194,7 @@ impl Version {
                     Error::Corrupt(format!("{} has bad text at line {}", place(), rec.line))
                 })?;
             }
-            id.0.clear();
-            if key_idx.is_empty() {
-                use std::fmt::Write;
-                let _ = write!(id.0, "{pos}");
-            } else {
-                for (j, &k) in key_idx.iter().enumerate() {
-                    if j > 0 {
-                        id.0.push(KEY_SEPARATOR);
-                    }
-                    id.0.push_str(&text[k]);
-                }
-            }
+            row_ids.build_into(pos, &text, &mut id.0);
             for (cell, t) in cells.iter_mut().zip(&text) {
                 match cell {
                     Some(c) => {
@@ -254,51 +245,5 @@ impl Version {
             Ok(ControlFlow::Continue(()))
         })?;
         Ok(found)
-    }
-}
-
-/// Builds the canonical version hash: header, then each row (id, exclusion, cells), then the
-/// distrusted columns. Ingest and rebuild both use it, so they agree by construction.
-pub struct VersionHashBuilder {
-    h: VersionHasher,
-}
-
-impl VersionHashBuilder {
-    /// Start with the header.
-    pub fn new(header: &[String]) -> Self {
-        let mut h = VersionHasher::new();
-        for name in header {
-            h.item(1, Some(name));
-        }
-        VersionHashBuilder { h }
-    }
-
-    /// Add one row.
-    pub fn row(&mut self, id: &RowId, excluded: bool, cells: &[Option<String>]) {
-        self.h.item(2, Some(id.as_str()));
-        if excluded {
-            self.h.item(3, None);
-        }
-        for c in cells {
-            self.h.item(4, c.as_deref());
-        }
-    }
-
-    /// Add one raw row (not excluded, no missing cells), as ingest sees it.
-    pub fn raw_row(&mut self, id: &str, cells: &[String]) {
-        self.h.item(2, Some(id));
-        for c in cells {
-            self.h.item(4, Some(c));
-        }
-    }
-
-    /// Finish with the distrusted columns.
-    pub fn finish(mut self, header: &[String], distrusted: &[bool]) -> VersionHash {
-        for (name, d) in header.iter().zip(distrusted) {
-            if *d {
-                self.h.item(5, Some(name));
-            }
-        }
-        self.h.finish()
     }
 }

@@ -5,10 +5,10 @@
 //! declared by `missing` fixes up to the version are passed on, so a code that reappears is
 //! counted as declared missing. Row numbers in the result are 1-based positions in the extract.
 
-use super::version::Version;
 use crate::error::Result;
 use crate::model::{Change, FixAction};
 use crate::profile::{FindingDetail, TableOptions, TableProfile, TableProfiler};
+use crate::query::{Version, decode};
 use crate::store::Reader;
 use std::collections::BTreeMap;
 use std::ops::ControlFlow;
@@ -26,7 +26,7 @@ pub fn declared_codes(
         let Some(stored) = reader.try_commit(seq)? else {
             continue;
         };
-        if let Change::Fixes(list) = super::decode(&stored)?.change {
+        if let Change::Fixes(list) = decode(&stored)?.change {
             for r in list {
                 if r.fix.table != version.table {
                     continue;

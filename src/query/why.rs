@@ -5,8 +5,9 @@
 //! the commits involved: the cost grows with the cell's history, not with the table. Only a
 //! cell no fix touched needs its raw value read from the extract.
 
+use super::commits::{decode, ingest_record};
+use super::rev::Rev;
 use super::version::Version;
-use super::{Rev, decode};
 use crate::error::{Error, Result};
 use crate::hash::CommitId;
 use crate::model::{Author, Change, Evidence, FixAction, RowId};
@@ -131,7 +132,7 @@ fn start(
         .extract_at(table, rev.seq)?
         .ok_or_else(|| Error::UnknownTable(table.to_string()))?;
     let upto = if rev.raw { ingest_seq } else { rev.seq };
-    Ok((ingest_seq, upto, super::ingest_record(reader, ingest_seq)?))
+    Ok((ingest_seq, upto, ingest_record(reader, ingest_seq)?))
 }
 
 fn events<'r, 'a>(reader: &'r Reader<'a>) -> Result<Events<'r, 'a>> {

@@ -1,13 +1,11 @@
 //! Filling the report and export views from the store: the glue between history and the pure
 //! renderers in [`crate::report`].
 
-use super::profile::{declared_codes, profile_version};
-use super::verify::VerifyReport;
-use super::version::Version;
-use super::{Rev, decode, rules};
+use super::profiling::{declared_codes, profile_version};
 use crate::error::Result;
 use crate::model::{Change, CommitBody, FixAction};
 use crate::profile::{ColumnProfile, InferredType, TableOptions};
+use crate::query::{Rev, VerifyReport, Version, decode, rules_at};
 use crate::report::{
     Bin, CellView, CodebookColumn, CodebookSource, CodebookView, ColumnStats, ColumnView,
     CommitView, CsvwDatatype, DecisionRow, DialectView, EvidenceView, ExtractView, FixView,
@@ -16,6 +14,7 @@ use crate::report::{
 };
 use crate::signing;
 use crate::store::{Reader, StoredCommit};
+use crate::values::number_value;
 use std::collections::{HashMap, HashSet};
 use std::ops::ControlFlow;
 
@@ -49,11 +48,7 @@ fn numeric_values(reader: &Reader<'_>, version: &Version, cols: &[usize]) -> Res
     version.for_each_row(reader, |row| {
         if !row.excluded {
             for (k, &c) in cols.iter().enumerate() {
-                if let Some(v) = row.cells[c]
-                    .as_deref()
-                    .and_then(|t| t.trim().parse::<f64>().ok())
-                    && v.is_finite()
-                {
+                if let Some(v) = row.cells[c].as_deref().and_then(number_value) {
                     values[k].push(v);
                 }
             }
@@ -302,9 +297,9 @@ pub fn report_view(
         });
     }
     let (columns, mut problems) = columns(reader, &before, &after)?;
-    if let Some((_, _, text)) = rules::rules_at(reader, table, upto)?
+    if let Some((_, _, text)) = rules_at(reader, table, upto)?
         && let Ok(ruleset) = crate::checks::RuleSet::parse(&text)
-        && let Ok(report) = rules::check_version(reader, &after, &ruleset)
+        && let Ok(report) = super::check::check_version(reader, &after, &ruleset)
     {
         for r in report.rules.iter().filter(|r| r.violations > 0) {
             problems.push(ProblemView {

@@ -1,37 +1,14 @@
-//! Commands that write history: init, ingest, status, discard, commit.
+//! The pending fixes: `status`, `discard`, `carry` (replay fixes onto a new extract) and
+//! `commit` (sign them).
 
-use super::identity;
 use super::out::{self, BAD, BOLD, DIM, GOOD, paint};
-use anyhow::{Context, Result, bail};
+use anyhow::Result;
 use clap::Args;
-use emend::history;
-use emend::ingest::IngestOptions;
-use emend::model::{Change, TextEncoding};
-use emend::signing::fingerprint;
+use emend::ledger;
+use emend::model::Change;
 use std::io::Write;
-use std::path::PathBuf;
 
-#[derive(Args, Debug)]
-pub struct IngestArgs {
-    /// The extract: a CSV or TSV file, kept byte for byte
-    file: PathBuf,
-    /// Table name (letters, digits, '_', '-', '.')
-    #[arg(long, short = 't')]
-    table: String,
-    /// Key column(s) that name each row, comma-separated; without a key rows are named by
-    /// position. A later extract of a table reuses its key
-    #[arg(long, value_delimiter = ',')]
-    key: Vec<String>,
-    /// Field delimiter (one character, or 'tab'); guessed when not given
-    #[arg(long)]
-    delimiter: Option<String>,
-    /// Text encoding: utf-8 (default), windows-1252 or latin-1
-    #[arg(long)]
-    encoding: Option<String>,
-    /// Commit message
-    #[arg(long, short = 'm')]
-    message: Option<String>,
-}
+use super::context::CliContext;
 
 #[derive(Args, Debug)]
 pub struct CommitArgs {
@@ -40,124 +17,8 @@ pub struct CommitArgs {
     message: String,
 }
 
-pub fn init() -> Result<i32> {
-    let cwd = std::env::current_dir()?;
-    let now = super::now()?;
-    let mut store = emend::store::Store::init(&cwd, &now)?;
-    let mut o = out::stdout();
-    writeln!(
-        o,
-        "{} empty store in {}",
-        paint(GOOD, "made"),
-        store.path().display()
-    )?;
-    match identity::try_load(&identity::home()?)? {
-        Some(id) => {
-            let key = id.signer.public_key();
-            history::trust(&mut store, &key, &id.name, id.email.as_deref(), &now)?;
-            writeln!(
-                o,
-                "  trusts {} (key {})",
-                paint(BOLD, &id.name),
-                fingerprint(&key)
-            )?;
-        }
-        None => {
-            writeln!(
-                o,
-                "  no signing identity yet: make one with 'emend id new --name \"Your Name\"'; the first key to commit here becomes trusted"
-            )?;
-        }
-    }
-    writeln!(o, "  next: emend ingest FILE --table NAME --key COLUMN")?;
-    Ok(0)
-}
-
-fn parse_delimiter(text: &str) -> Result<u8> {
-    match text {
-        "tab" | "\\t" | "\t" => Ok(b'\t'),
-        t if t.len() == 1 && t.is_ascii() && !matches!(t, "\"" | "\n" | "\r") => {
-            Ok(t.as_bytes()[0])
-        }
-        _ => bail!(
-            "--delimiter must be one ASCII character other than a quote or line end, or 'tab' (got '{text}')"
-        ),
-    }
-}
-
-pub fn ingest(args: IngestArgs) -> Result<i32> {
-    let mut store = super::open_store()?;
-    let id = identity::load()?;
-    let encoding = match &args.encoding {
-        None => None,
-        Some(e) => Some(TextEncoding::parse(e).with_context(|| {
-            format!("unknown --encoding '{e}': use utf-8, windows-1252 or latin-1")
-        })?),
-    };
-    let opts = IngestOptions {
-        table: args.table.clone(),
-        key: args
-            .key
-            .iter()
-            .map(|k| k.trim().to_string())
-            .filter(|k| !k.is_empty())
-            .collect(),
-        delimiter: args.delimiter.as_deref().map(parse_delimiter).transpose()?,
-        encoding,
-    };
-    let started = std::time::Instant::now();
-    let ctx = id.context(super::now()?);
-    let (done, outcome) = history::ingest(
-        &mut store,
-        &args.file,
-        &opts,
-        args.message.as_deref().unwrap_or(""),
-        &ctx,
-    )
-    .with_context(|| format!("ingesting {}", args.file.display()))?;
-    let secs = started.elapsed().as_secs_f64();
-    let r = &outcome.record;
-    let mut o = out::stdout();
-    writeln!(
-        o,
-        "{} {} as commit {} {}",
-        paint(GOOD, "ingested"),
-        paint(BOLD, &r.file_name),
-        done.seq,
-        paint(DIM, done.id.short())
-    )?;
-    writeln!(
-        o,
-        "  table {}: {} rows × {} columns, key {}",
-        paint(BOLD, &r.table),
-        r.n_rows,
-        r.header.len(),
-        if r.key.is_empty() {
-            "none (rows named by position)".to_string()
-        } else {
-            r.key.join(", ")
-        }
-    )?;
-    writeln!(
-        o,
-        "  extract {} ({} bytes; {} new compressed bytes stored) in {:.2} s",
-        r.extract.short(),
-        r.n_bytes,
-        outcome.new_bytes,
-        secs
-    )?;
-    if outcome.blank_lines > 0 {
-        writeln!(
-            o,
-            "  skipped {} blank lines (kept in the raw bytes)",
-            outcome.blank_lines
-        )?;
-    }
-    Ok(0)
-}
-
-pub fn status(json: bool) -> Result<i32> {
-    let store = super::open_store()?;
+pub fn status(cx: &CliContext, json: bool) -> Result<i32> {
+    let store = cx.store()?;
     let reader = store.read();
     let pending = reader.pending()?;
     let head = reader.head()?;
@@ -214,11 +75,11 @@ pub struct CarryArgs {
     json: bool,
 }
 
-pub fn carry(a: CarryArgs) -> Result<i32> {
-    use emend::history::carry::Outcome;
-    let mut store = super::open_store()?;
-    let now = super::now()?;
-    let list = history::carry::carry(&mut store, &a.table, a.from.as_deref(), &now)?;
+pub fn carry(cx: &CliContext, a: CarryArgs) -> Result<i32> {
+    use emend::ledger::carry::Outcome;
+    let mut store = cx.store()?;
+    let now = cx.now()?;
+    let list = ledger::carry::carry(&mut store, &a.table, a.from.as_deref(), &now)?;
     if a.json {
         let items: Vec<serde_json::Value> = list
             .iter()
@@ -288,18 +149,18 @@ pub fn carry(a: CarryArgs) -> Result<i32> {
     Ok(0)
 }
 
-pub fn discard() -> Result<i32> {
-    let mut store = super::open_store()?;
-    let n = history::discard(&mut store)?;
+pub fn discard(cx: &CliContext) -> Result<i32> {
+    let mut store = cx.store()?;
+    let n = ledger::discard(&mut store)?;
     writeln!(out::stdout(), "dropped {n} pending fixes")?;
     Ok(0)
 }
 
-pub fn commit(args: CommitArgs) -> Result<i32> {
-    let mut store = super::open_store()?;
-    let id = identity::load()?;
-    let ctx = id.context(super::now()?);
-    let done = history::commit_pending(&mut store, &args.message, &ctx)?;
+pub fn commit(cx: &CliContext, args: CommitArgs) -> Result<i32> {
+    let mut store = cx.store()?;
+    let id = cx.identity()?;
+    let ctx = id.context(cx.now()?);
+    let done = ledger::commit_pending(&mut store, &args.message, &ctx)?;
     let mut o = out::stdout();
     let Change::Fixes(records) = &done.body.change else {
         unreachable!("commit_pending records fixes");

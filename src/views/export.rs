@@ -3,11 +3,11 @@
 //! Export is deterministic: the same version and options give the same bytes every run. It
 //! writes the extract's own delimiter, line ends, byte-order mark and quoting style, in UTF-8.
 
-use super::version::Version;
 use crate::error::{Error, Result};
 use crate::hash::BlobId;
-use crate::ingest::csv::write_record;
+use crate::query::Version;
 use crate::store::Reader;
+use crate::table::csv::write_record;
 use std::io::Write;
 use std::ops::ControlFlow;
 

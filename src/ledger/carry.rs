@@ -8,10 +8,10 @@
 //! problem are fixed too. Applied fixes are staged as pending, each naming the commits it came
 //! from, so `why` can show the chain of origins.
 
-use super::version::Version;
-use super::{decode, resolve};
+use super::apply::FixApplier;
 use crate::error::{Error, Result};
 use crate::model::{Change, Fix, FixAction, Origin, RowId};
+use crate::query::{Version, align_positions, decode, resolve};
 use crate::store::Store;
 use std::collections::{HashMap, HashSet};
 use std::ops::ControlFlow;
@@ -179,7 +179,7 @@ pub fn carry(
     let position_map = if keyless {
         let old_raw = Version::load(&reader, table, prev_seq, true)?;
         let new_raw = Version::load(&reader, table, new_seq, true)?;
-        Some(super::diff::align_positions(&reader, &old_raw, &new_raw)?)
+        Some(align_positions(&reader, &old_raw, &new_raw)?)
     } else {
         None
     };
@@ -210,19 +210,10 @@ pub fn carry(
         }
     }
     let col_of = |c: &str| new_version.col_idx(c).ok();
-    // Per fix: its column in the new extract, and the values a value-level fix looks for,
-    // hashed (a recode map may hold thousands).
-    let cols: Vec<Option<usize>> = fixes
+    // Per fix: how it applies in the new extract (its column there, the values it looks for).
+    let appliers: Vec<FixApplier<'_>> = fixes
         .iter()
-        .map(|(fix, _)| fix.action.column().and_then(col_of))
-        .collect();
-    let lookups: Vec<HashSet<&str>> = fixes
-        .iter()
-        .map(|(fix, _)| match &fix.action {
-            FixAction::Recode { pairs, .. } => pairs.iter().map(|(f, _)| f.as_str()).collect(),
-            FixAction::Missing { codes, .. } => codes.iter().map(String::as_str).collect(),
-            _ => HashSet::new(),
-        })
+        .map(|(fix, _)| FixApplier::with_column(fix, fix.action.column().and_then(col_of)))
         .collect();
     let mut rows: HashMap<String, Vec<Option<String>>> = HashMap::new();
     // Per value-level fix: (cells matching now, rows matching now).
@@ -231,16 +222,8 @@ pub fn carry(
         if wanted.contains(r.id.as_str()) {
             rows.insert(r.id.0.clone(), r.cells.to_vec());
         }
-        for (k, (fix, _)) in fixes.iter().enumerate() {
-            let hit = match &fix.action {
-                FixAction::Recode { .. } | FixAction::Missing { .. } => cols[k].is_some_and(|c| {
-                    r.cells[c]
-                        .as_deref()
-                        .is_some_and(|v| lookups[k].contains(v))
-                }),
-                _ => false,
-            };
-            if hit {
+        for (k, applier) in appliers.iter().enumerate() {
+            if applier.matches(r.cells) {
                 matches[k].0 += 1;
                 matches[k].1.insert(r.id.0.clone());
             }

@@ -1,14 +1,13 @@
-//! The auditor's commands: diff, why, tag, tags.
+//! `diff`: every changed cell, row and mark between two versions, for people, JSON or CSV.
 
-use super::identity;
 use super::out::{self, BAD, BOLD, CHANGED, DIM, GOOD, paint};
 use anyhow::{Result, bail};
 use clap::Args;
-use emend::history::diff::{Diff, FixRef, Piece, diff, inline};
-use emend::history::why::{FixEvent, why_cell, why_column, why_row};
-use emend::history::{self, Rev};
-use emend::signing::fingerprint;
+use emend::query::diff::{Diff, FixRef, Piece, diff, inline};
+use emend::query::{self, Rev};
 use std::io::Write;
+
+use super::context::CliContext;
 
 #[derive(Args, Debug)]
 pub struct DiffArgs {
@@ -25,37 +24,6 @@ pub struct DiffArgs {
     /// Print JSON (docs/json.md)
     #[arg(long)]
     json: bool,
-}
-
-#[derive(Args, Debug)]
-pub struct WhyArgs {
-    /// Table
-    table: String,
-    /// Row (key value, or 1-based position without a key); leave out with --col
-    row: Option<String>,
-    /// Column: with ROW, the life of one cell; alone, the column's history
-    column: Option<String>,
-    /// The column's history (distrust, recodes, missing codes)
-    #[arg(long = "col", value_name = "COLUMN", conflicts_with = "column")]
-    col: Option<String>,
-    /// Tell the story up to this revision (default latest)
-    #[arg(long, default_value = "latest", value_name = "REV")]
-    at: String,
-    /// Print JSON (docs/json.md)
-    #[arg(long)]
-    json: bool,
-}
-
-#[derive(Args, Debug)]
-pub struct TagArgs {
-    /// Tag name (a letter first; letters, digits, '_', '-', '.')
-    name: String,
-    /// The commit to name (default latest)
-    #[arg(default_value = "latest")]
-    rev: String,
-    /// What the tag marks
-    #[arg(short = 'm', long = "message")]
-    message: Option<String>,
 }
 
 fn fix_ref_json(f: &Option<FixRef>) -> serde_json::Value {
@@ -92,7 +60,7 @@ fn diff_json(d: &Diff) -> serde_json::Value {
     })
 }
 
-fn show_value(v: &Option<String>) -> String {
+pub(super) fn show_value(v: &Option<String>) -> String {
     match v {
         Some(s) => s.clone(),
         None => "<missing>".into(),
@@ -100,7 +68,7 @@ fn show_value(v: &Option<String>) -> String {
 }
 
 /// old → new, with a word-level difference for long texts.
-fn change_text(old: &Option<String>, new: &Option<String>) -> String {
+pub(super) fn change_text(old: &Option<String>, new: &Option<String>) -> String {
     match (old, new) {
         (Some(a), Some(b)) if a.chars().count() > 40 || b.chars().count() > 40 => {
             let mut s = String::new();
@@ -228,20 +196,20 @@ fn diff_csv_lines(d: &Diff) -> Vec<[String; 11]> {
 }
 
 fn csv_line(o: &mut dyn Write, fields: &[String]) -> Result<()> {
-    emend::ingest::csv::write_record(o, fields.iter().map(|f| f.as_bytes()), b',', false, false)?;
+    emend::table::csv::write_record(o, fields.iter().map(|f| f.as_bytes()), b',', false, false)?;
     Ok(())
 }
 
-pub fn diff_cmd(a: DiffArgs) -> Result<i32> {
-    let store = super::open_store()?;
+pub fn diff_cmd(cx: &CliContext, a: DiffArgs) -> Result<i32> {
+    let store = cx.store()?;
     let reader = store.read();
     let (tables, from, to) = match a.args.as_slice() {
         [t, f, to] => (vec![t.clone()], f, to),
         [f, to] => (reader.table_names()?, f, to),
         _ => bail!("diff takes [TABLE] FROM TO"),
     };
-    let from_rev = history::resolve(&reader, from)?;
-    let to_rev = history::resolve(&reader, to)?;
+    let from_rev = query::resolve(&reader, from)?;
+    let to_rev = query::resolve(&reader, to)?;
     let mut diffs = Vec::new();
     for t in &tables {
         if reader
@@ -414,259 +382,6 @@ pub fn diff_cmd(a: DiffArgs) -> Result<i32> {
         if d.is_empty() {
             writeln!(o, "  no differences")?;
         }
-    }
-    Ok(0)
-}
-
-fn event_json(e: &FixEvent) -> serde_json::Value {
-    serde_json::json!({
-        "seq": e.seq,
-        "id": e.id.to_hex(),
-        "author": {"name": e.author.name, "email": e.author.email, "fingerprint": fingerprint(&e.author.key)},
-        "time": e.time,
-        "message": e.message,
-        "kind": e.kind,
-        "description": e.description,
-        "column": e.column,
-        "why": e.why,
-        "consulted": e.consulted,
-        "evidence": e.evidence.iter().map(|v| serde_json::json!({"name": v.name, "blake3": v.blob.to_hex(), "bytes": v.n_bytes})).collect::<Vec<_>>(),
-        "old": e.old,
-        "new": e.new,
-        "carried_from": e.origins.iter().map(|x| serde_json::json!({"seq": x.seq, "id": x.id.to_hex(), "fix_index": x.fix_idx})).collect::<Vec<_>>(),
-        "signature_valid": e.signature_ok,
-        "signer_trusted": e.trusted,
-    })
-}
-
-fn print_event(o: &mut dyn Write, e: &FixEvent, with_change: bool) -> Result<()> {
-    let seal = match (e.signature_ok, e.trusted) {
-        (true, true) => paint(GOOD, "signature valid, trusted signer"),
-        (true, false) => paint(BAD, "signature valid, UNTRUSTED signer"),
-        (false, _) => paint(BAD, "SIGNATURE DOES NOT VERIFY"),
-    };
-    writeln!(
-        o,
-        "  {} {}  {}  {} {}",
-        paint(BOLD, format!("commit {}", e.seq)),
-        paint(DIM, e.id.short()),
-        e.time,
-        e.author.name,
-        paint(DIM, format!("({})", fingerprint(&e.author.key)))
-    )?;
-    if with_change {
-        let col = e
-            .column
-            .as_deref()
-            .map(|c| format!("{c}: "))
-            .unwrap_or_default();
-        writeln!(o, "    {} {col}{}", e.kind, change_text(&e.old, &e.new))?;
-    } else {
-        writeln!(o, "    {}", e.description)?;
-    }
-    writeln!(o, "    why: {}", e.why)?;
-    if !e.origins.is_empty() {
-        let chain: Vec<String> = e
-            .origins
-            .iter()
-            .map(|x| format!("commit {}", x.seq))
-            .collect();
-        writeln!(
-            o,
-            "    carried from {} (the reason was given there)",
-            chain.join(" via ")
-        )?;
-    }
-    if let Some(c) = &e.consulted {
-        writeln!(o, "    consulted: {c}")?;
-    }
-    for v in &e.evidence {
-        writeln!(
-            o,
-            "    evidence: {} (blake3 {}, {} bytes)",
-            v.name,
-            v.blob.to_hex(),
-            v.n_bytes
-        )?;
-    }
-    writeln!(o, "    {seal}")?;
-    Ok(())
-}
-
-pub fn why_cmd(a: WhyArgs) -> Result<i32> {
-    let store = super::open_store()?;
-    let reader = store.read();
-    let rev = history::resolve(&reader, &a.at)?;
-    let mut o = out::stdout();
-    if let Some(col) = a.col.as_deref().filter(|_| a.row.is_none()) {
-        let (ingest_seq, list) = why_column(&reader, &a.table, col, rev)?;
-        if a.json {
-            out::json(
-                &serde_json::json!({"table": a.table, "column": col, "extract_commit": ingest_seq, "fixes": list.iter().map(|(e, n)| {
-                let mut v = event_json(e);
-                v.as_object_mut().expect("object").insert("cells_changed".into(), (*n).into());
-                v
-            }).collect::<Vec<_>>()}),
-            )?;
-            return Ok(0);
-        }
-        writeln!(
-            o,
-            "{} column {} since its extract (commit {ingest_seq})",
-            paint(BOLD, &a.table),
-            paint(BOLD, col)
-        )?;
-        if list.is_empty() {
-            writeln!(o, "  no distrust, recode or missing-code fix")?;
-        }
-        for (e, n) in &list {
-            print_event(&mut o, e, false)?;
-            writeln!(o, "    {n} cells changed")?;
-        }
-        return Ok(0);
-    }
-    let Some(row_text) = a.row.as_deref() else {
-        bail!("give ROW [COLUMN], or --col COLUMN");
-    };
-    let row = history::parse_row(&reader, &a.table, row_text)?;
-    let column = a.column.as_deref().or(a.col.as_deref());
-    let Some(column) = column else {
-        let (ingest_seq, list) = why_row(&reader, &a.table, &row, rev)?;
-        if a.json {
-            out::json(
-                &serde_json::json!({"table": a.table, "row": row.to_string(), "extract_commit": ingest_seq, "fixes": list.iter().map(event_json).collect::<Vec<_>>()}),
-            )?;
-            return Ok(0);
-        }
-        writeln!(
-            o,
-            "{} row {} since its extract (commit {ingest_seq})",
-            paint(BOLD, &a.table),
-            paint(BOLD, &row)
-        )?;
-        if list.is_empty() {
-            writeln!(o, "  no fix touched this row")?;
-        }
-        for e in &list {
-            print_event(&mut o, e, e.old.is_some() || e.new.is_some())?;
-        }
-        return Ok(0);
-    };
-    let story = why_cell(&reader, &a.table, &row, column, rev)?;
-    if a.json {
-        out::json(&serde_json::json!({
-            "table": story.table,
-            "row": story.row.to_string(),
-            "column": story.column,
-            "extract_commit": story.ingest_seq,
-            "extract_file": story.extract_file,
-            "raw": story.raw,
-            "fixes": story.events.iter().map(event_json).collect::<Vec<_>>(),
-            "at_seq": story.at_seq,
-            "value": story.value,
-            "row_excluded_by": story.row_excluded_by.as_ref().map(event_json),
-            "column_distrusted_by": story.column_distrusted_by.as_ref().map(event_json),
-        }))?;
-        return Ok(0);
-    }
-    writeln!(
-        o,
-        "{} row {} column {}",
-        paint(BOLD, &story.table),
-        paint(BOLD, &story.row),
-        paint(BOLD, &story.column)
-    )?;
-    writeln!(
-        o,
-        "  raw value {} (extract {}, commit {})",
-        paint(BOLD, show_value(&story.raw)),
-        story.extract_file,
-        story.ingest_seq
-    )?;
-    if story.events.is_empty() {
-        writeln!(o, "  no fix changed this cell")?;
-    }
-    for e in &story.events {
-        print_event(&mut o, e, true)?;
-    }
-    if let Some(e) = &story.row_excluded_by {
-        writeln!(o, "  the row is excluded:")?;
-        print_event(&mut o, e, false)?;
-    }
-    if let Some(e) = &story.column_distrusted_by {
-        writeln!(o, "  the column is distrusted:")?;
-        print_event(&mut o, e, false)?;
-    }
-    writeln!(
-        o,
-        "  value at commit {}: {}",
-        story.at_seq,
-        paint(BOLD, show_value(&story.value))
-    )?;
-    Ok(0)
-}
-
-pub fn tag_cmd(a: TagArgs) -> Result<i32> {
-    let mut store = super::open_store()?;
-    let id = identity::load()?;
-    let ctx = id.context(super::now()?);
-    let done = history::tag(
-        &mut store,
-        &a.name,
-        &a.rev,
-        a.message.as_deref().unwrap_or(""),
-        &ctx,
-    )?;
-    let target = match &done.body.change {
-        emend::model::Change::Tag(t) => t.target_seq,
-        _ => unreachable!("tag makes a tag commit"),
-    };
-    writeln!(
-        out::stdout(),
-        "{} {} names commit {} (signed as commit {} {})",
-        paint(GOOD, "tagged"),
-        paint(BOLD, &a.name),
-        target,
-        done.seq,
-        paint(DIM, done.id.short())
-    )?;
-    Ok(0)
-}
-
-pub fn tags_cmd(json: bool) -> Result<i32> {
-    let store = super::open_store()?;
-    let reader = store.read();
-    let mut items = Vec::new();
-    for (name, seq, target) in reader.tags()? {
-        let stored = reader
-            .try_commit(seq)?
-            .ok_or_else(|| anyhow::anyhow!("tag commit {seq} is missing"))?;
-        let body = history::decode(&stored)?;
-        items.push((name, seq, target, body));
-    }
-    if json {
-        out::json(
-            &serde_json::json!({"tags": items.iter().map(|(n, s, t, b)| serde_json::json!({
-            "name": n, "target_seq": t, "tag_seq": s, "message": b.message, "time": b.time,
-            "author": {"name": b.author.name, "fingerprint": fingerprint(&b.author.key)},
-        })).collect::<Vec<_>>()}),
-        )?;
-        return Ok(0);
-    }
-    let mut o = out::stdout();
-    if items.is_empty() {
-        writeln!(o, "no tags yet: emend tag NAME [REV] -m \"...\"")?;
-    }
-    for (n, s, t, b) in &items {
-        writeln!(
-            o,
-            "{}  commit {t}  {}  {}  {} {}",
-            paint(BOLD, n),
-            b.time,
-            b.author.name,
-            b.message,
-            paint(DIM, format!("(tag commit {s})"))
-        )?;
     }
     Ok(0)
 }

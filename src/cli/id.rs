@@ -2,13 +2,13 @@
 //! (the secret seed in hex, mode 0600) in `$EMEND_HOME`, else the user's config folder.
 //! Keys never enter a store; a key file that others can read is refused.
 
+use super::context::CliContext;
 use super::out::{self, BOLD, DIM, GOOD, paint};
 use anyhow::{Context, Result, anyhow, bail};
 use clap::Args;
 use emend::signing::{Signer, fingerprint};
 use serde::{Deserialize, Serialize};
 use std::io::Write;
-use std::path::PathBuf;
 
 #[derive(Args, Debug)]
 pub struct NewArgs {
@@ -35,25 +35,14 @@ pub struct Identity {
 }
 
 impl Identity {
-    pub fn context(&self, now: String) -> emend::history::CommitContext<'_> {
-        emend::history::CommitContext {
+    pub fn context(&self, now: String) -> emend::ledger::CommitContext<'_> {
+        emend::ledger::CommitContext {
             signer: &self.signer,
             name: self.name.clone(),
             email: self.email.clone(),
             now,
         }
     }
-}
-
-/// Where identities live.
-pub fn home() -> Result<PathBuf> {
-    if let Some(h) = std::env::var_os("EMEND_HOME") {
-        return Ok(PathBuf::from(h));
-    }
-    use etcetera::BaseStrategy;
-    let base = etcetera::choose_base_strategy()
-        .map_err(|e| anyhow!("cannot find your config folder ({e}); set EMEND_HOME"))?;
-    Ok(base.config_dir().join("emend"))
 }
 
 /// Make a new identity in `dir`. Refuses to replace one.
@@ -154,19 +143,8 @@ pub fn try_load(dir: &std::path::Path) -> Result<Option<Identity>> {
     }))
 }
 
-/// Load the identity, or fail with the command that makes one.
-pub fn load() -> Result<Identity> {
-    let dir = home()?;
-    try_load(&dir)?.ok_or_else(|| {
-        anyhow!(
-            "no signing identity in {}; make one with: emend id new --name \"Your Name\" --email you@example.org",
-            dir.display()
-        )
-    })
-}
-
-pub fn new(args: NewArgs) -> Result<i32> {
-    let dir = home()?;
+pub fn new(cx: &CliContext, args: NewArgs) -> Result<i32> {
+    let dir = cx.home()?;
     let id = create(&dir, &args.name, args.email.as_deref())?;
     let mut o = out::stdout();
     writeln!(
@@ -198,11 +176,11 @@ pub fn new(args: NewArgs) -> Result<i32> {
     Ok(0)
 }
 
-pub fn show(json: bool) -> Result<i32> {
-    let dir = home()?;
-    let id = load()?;
+pub fn show(cx: &CliContext, json: bool) -> Result<i32> {
+    let dir = cx.home()?;
+    let id = cx.identity()?;
     let key = id.signer.public_key();
-    let trusted = match super::open_store() {
+    let trusted = match cx.store() {
         Ok(store) => Some(store.read().signers()?.iter().any(|s| s.key == key)),
         Err(_) => None,
     };

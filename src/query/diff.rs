@@ -6,8 +6,9 @@
 //! key, or, for tables without a key, aligned with a sequence diff over row hashes so that
 //! rows inserted or deleted in the middle do not make every later row look changed.
 
+use super::commits::{decode, ingest_record};
+use super::rev::Rev;
 use super::version::Version;
-use super::{Rev, decode};
 use crate::error::{Error, Result};
 use crate::hash::CommitId;
 use crate::model::{Change, RowId};
@@ -217,7 +218,7 @@ fn row_order_key(row: &str, keyless: bool) -> (u64, String) {
 fn same_extract(reader: &Reader<'_>, table: &str, from: u64, to: u64, ingest: u64) -> Result<Diff> {
     let (lo, hi) = (from.min(to), from.max(to));
     let reversed = from > to;
-    let def = super::ingest_record(reader, ingest)?;
+    let def = ingest_record(reader, ingest)?;
     let keyless = def.key.is_empty();
     let mut out = Diff {
         table: table.to_string(),

@@ -1,0 +1,81 @@
+//! What one run of `emend` works with, read once from the environment by [`CliContext::from_env`]
+//! and passed to every command: the folder it runs in, the clock (`EMEND_NOW` or the system
+//! time), and where signing identities live (`EMEND_HOME` or the config folder). Commands ask
+//! the context; none of them reads the environment or the clock on its own.
+
+use super::id::{self, Identity};
+use anyhow::{Result, anyhow};
+use emend::store::Store;
+use std::path::{Path, PathBuf};
+
+/// The folder, clock and identity home of one run.
+#[derive(Debug, Clone)]
+pub struct CliContext {
+    cwd: PathBuf,
+    fixed_now: Option<String>,
+    home: Option<PathBuf>,
+}
+
+impl CliContext {
+    /// Reads the current folder, `EMEND_NOW` and `EMEND_HOME`.
+    pub fn from_env() -> Result<CliContext> {
+        Ok(CliContext {
+            cwd: std::env::current_dir()?,
+            fixed_now: std::env::var("EMEND_NOW").ok(),
+            home: std::env::var_os("EMEND_HOME").map(PathBuf::from),
+        })
+    }
+
+    /// The folder the command runs in.
+    pub fn cwd(&self) -> &Path {
+        &self.cwd
+    }
+
+    /// Open the store for the current folder (found by walking up).
+    pub fn store(&self) -> Result<Store> {
+        Ok(Store::discover(&self.cwd)?)
+    }
+
+    /// The time to record: `EMEND_NOW` when set (for reproducible runs), else the clock, in UTC.
+    pub fn now(&self) -> Result<String> {
+        if let Some(fixed) = &self.fixed_now {
+            let parsed = chrono::DateTime::parse_from_rfc3339(fixed).map_err(|e| {
+                anyhow!(
+                    "EMEND_NOW='{fixed}' is not an RFC 3339 time ({e}); e.g. 2026-10-01T09:00:00Z"
+                )
+            })?;
+            return Ok(parsed
+                .with_timezone(&chrono::Utc)
+                .format("%Y-%m-%dT%H:%M:%SZ")
+                .to_string());
+        }
+        Ok(chrono::Utc::now().format("%Y-%m-%dT%H:%M:%SZ").to_string())
+    }
+
+    /// Where identities live: `EMEND_HOME` when set, else `emend` in the config folder.
+    pub fn home(&self) -> Result<PathBuf> {
+        if let Some(h) = &self.home {
+            return Ok(h.clone());
+        }
+        use etcetera::BaseStrategy;
+        let base = etcetera::choose_base_strategy()
+            .map_err(|e| anyhow!("cannot find your config folder ({e}); set EMEND_HOME"))?;
+        Ok(base.config_dir().join("emend"))
+    }
+
+    /// The signing identity, or an error with the command that makes one.
+    pub fn identity(&self) -> Result<Identity> {
+        let dir = self.home()?;
+        id::try_load(&dir)?.ok_or_else(|| {
+            anyhow!(
+                "no signing identity in {}; make one with: emend id new --name \"Your Name\" --email you@example.org",
+                dir.display()
+            )
+        })
+    }
+
+    /// The signing identity, when there is one.
+    pub fn try_identity(&self) -> Result<Option<Identity>> {
+        id::try_load(&self.home()?)
+    }
+}

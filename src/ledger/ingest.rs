@@ -1,0 +1,88 @@
+//! Ingest as a signed commit: the extract stored by [`crate::ingest`] and its record sealed in
+//! one transaction.
+
+use super::seal::{CommitContext, CommitOutcome, seal};
+use crate::error::{Error, Result};
+use crate::ingest::{IngestOptions, IngestOutcome};
+use crate::model::{Change, TableVersion};
+use crate::query::ingest_record;
+use crate::store::Store;
+use std::path::Path;
+
+/// Check a table name: letters, digits, `_`, `-` and `.`, starting with a letter or digit.
+pub fn check_table_name(name: &str) -> Result<()> {
+    let ok = !name.is_empty()
+        && name.len() <= 64
+        && name
+            .chars()
+            .next()
+            .is_some_and(|c| c.is_ascii_alphanumeric())
+        && name
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || matches!(c, '_' | '-' | '.'));
+    if ok {
+        Ok(())
+    } else {
+        Err(Error::Invalid(format!(
+            "table name '{name}' is not allowed: use letters, digits, '_', '-' or '.', starting with a letter or digit"
+        )))
+    }
+}
+
+/// Ingest a file as a new extract of a table: one signed commit.
+pub fn ingest(
+    store: &mut Store,
+    path: &Path,
+    opts: &IngestOptions,
+    message: &str,
+    ctx: &CommitContext<'_>,
+) -> Result<(CommitOutcome, IngestOutcome)> {
+    check_table_name(&opts.table)?;
+    let mut opts = opts.clone();
+    let tx = store.transaction()?;
+    {
+        let reader = tx.read();
+        if reader.pending()?.iter().any(|p| p.fix.table == opts.table) {
+            return Err(Error::Invalid(format!(
+                "table '{}' has pending fixes; commit or discard them before a new extract",
+                opts.table
+            )));
+        }
+        if let Some((seq, extract)) = reader.extract_at(&opts.table, u64::MAX)? {
+            if opts.key.is_empty() {
+                opts.key = ingest_record(&reader, seq)?.key;
+            }
+            let _ = extract;
+        }
+    }
+    let outcome = crate::ingest::store_extract(&tx, path, &opts)?;
+    if let Some((_, latest)) = tx.read().extract_at(&opts.table, u64::MAX)?
+        && latest == outcome.record.extract
+    {
+        return Err(Error::Invalid(format!(
+            "{} is already the newest extract of '{}' (same bytes, {})",
+            path.display(),
+            opts.table,
+            latest.short()
+        )));
+    }
+    let message = if message.trim().is_empty() {
+        format!("ingest {}", outcome.record.file_name)
+    } else {
+        message.to_string()
+    };
+    let versions = vec![TableVersion {
+        table: opts.table.clone(),
+        hash: outcome.version,
+        n_rows: outcome.record.n_rows,
+    }];
+    let done = seal(
+        &tx,
+        ctx,
+        &message,
+        Change::Ingest(outcome.record.clone()),
+        versions,
+    )?;
+    tx.commit()?;
+    Ok((done, outcome))
+}

@@ -1,0 +1,27 @@
+//! Everything that signs: ingest commits, recording and committing fixes, tags, trust, carrying
+//! fixes to a new extract, and adopting rules files.
+//!
+//! Each operation is one store transaction that ends in [`seal`]: a recorded fix and its
+//! evidence files, an ingest and its commit, or a commit of all pending fixes land whole or not
+//! at all. Signing takes a [`CommitContext`] handed in by the caller.
+//! **Invariant:** the ledger never reads the clock, the environment or a key file.
+//! **Invariant:** a fix means the same on every extract: committing and carrying both apply
+//! fixes through [`apply::FixApplier`].
+//! **Direction:** `ledger` builds on `query` (revisions, versions) and `store`; nothing below
+//! it imports it.
+
+pub mod adopt;
+pub mod apply;
+pub mod carry;
+pub mod fixes;
+pub mod ingest;
+pub mod seal;
+pub mod tag;
+pub mod trust;
+
+pub use carry::carry;
+pub use fixes::{FixRequest, Recorded, commit_pending, discard, record_fix, store_file};
+pub use ingest::{check_table_name, ingest};
+pub use seal::{CommitContext, CommitOutcome, seal};
+pub use tag::{check_tag_name, tag};
+pub use trust::{trust, trust_key};

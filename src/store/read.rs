@@ -1,0 +1,690 @@
+//! Every read query: commits, extracts, the cell-edit and mark indexes, tags, pending fixes,
+//! signers, chunks and stored files. [`Reader`] works both on an open store and inside a write
+//! transaction.
+
+use super::codec::{self, Codec};
+use super::index::{CellEditRow, IndexRows, MarkRow};
+use super::{BlobReader, ChunkCache};
+use crate::error::{Error, Result};
+use crate::hash::{BlobId, ChunkId, CommitId};
+use crate::model::{Fix, RowId};
+use rusqlite::{Connection, OptionalExtension, params};
+use std::path::Path;
+use std::rc::Rc;
+
+/// A commit as stored: sequence, id, the canonical body bytes and the signature.
+#[derive(Debug, Clone)]
+pub struct StoredCommit {
+    /// Sequence number.
+    pub seq: u64,
+    /// Stored id.
+    pub id: CommitId,
+    /// Canonical body bytes.
+    pub body: Vec<u8>,
+    /// Ed25519 signature over the id.
+    pub signature: Vec<u8>,
+}
+
+/// A fix waiting to be committed.
+#[derive(Debug, Clone)]
+pub struct PendingFix {
+    /// Order of recording.
+    pub id: i64,
+    /// The fix.
+    pub fix: Fix,
+    /// When it was recorded.
+    pub added_at: String,
+    /// A note for `status` (the outcome of a carried fix).
+    pub note: Option<String>,
+}
+
+/// A trusted signer.
+#[derive(Debug, Clone)]
+pub struct SignerRecord {
+    /// Public key.
+    pub key: [u8; 32],
+    /// Display name.
+    pub name: String,
+    /// E-mail.
+    pub email: Option<String>,
+    /// When trust was recorded.
+    pub added_at: String,
+}
+
+/// Read queries, usable both on a store and inside a write transaction.
+#[derive(Clone, Copy)]
+pub struct Reader<'a> {
+    pub(super) conn: &'a Connection,
+}
+
+impl<'a> Reader<'a> {
+    /// The newest commit's sequence and id.
+    pub fn head(&self) -> Result<Option<(u64, CommitId)>> {
+        Ok(self
+            .conn
+            .query_row(
+                "SELECT seq, id FROM commit_log ORDER BY seq DESC LIMIT 1",
+                [],
+                |r| Ok((r.get::<_, i64>(0)? as u64, r.get::<_, [u8; 32]>(1)?)),
+            )
+            .optional()?
+            .map(|(s, id)| (s, CommitId::from_bytes(id))))
+    }
+
+    /// Every commit in sequence order.
+    pub fn commits(&self) -> Result<Vec<StoredCommit>> {
+        let mut stmt = self
+            .conn
+            .prepare("SELECT seq, id, body, signature FROM commit_log ORDER BY seq")?;
+        let rows = stmt.query_map([], stored_commit)?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// The commit with sequence `seq`.
+    pub fn try_commit(&self, seq: u64) -> Result<Option<StoredCommit>> {
+        Ok(self
+            .conn
+            .query_row(
+                "SELECT seq, id, body, signature FROM commit_log WHERE seq = ?1",
+                params![sq(seq)],
+                stored_commit,
+            )
+            .optional()?)
+    }
+
+    /// Sequences of commits whose id starts with the hex `prefix`.
+    pub fn commits_with_prefix(&self, prefix: &str) -> Result<Vec<(u64, CommitId)>> {
+        let mut stmt = self
+            .conn
+            .prepare_cached("SELECT seq, id FROM commit_log ORDER BY seq")?;
+        let rows = stmt.query_map([], |r| {
+            Ok((r.get::<_, i64>(0)? as u64, r.get::<_, [u8; 32]>(1)?))
+        })?;
+        let mut out = Vec::new();
+        for row in rows {
+            let (seq, id) = row?;
+            let id = CommitId::from_bytes(id);
+            if id.to_hex().starts_with(prefix) {
+                out.push((seq, id));
+            }
+        }
+        Ok(out)
+    }
+
+    /// Names of tables with at least one extract, in order of first ingest.
+    pub fn table_names(&self) -> Result<Vec<String>> {
+        let mut stmt = self
+            .conn
+            .prepare("SELECT tbl FROM extract_index GROUP BY tbl ORDER BY MIN(seq)")?;
+        let rows = stmt.query_map([], |r| r.get(0))?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// The newest ingest of `table` at or before `seq`: (ingest seq, extract id).
+    pub fn extract_at(&self, table: &str, seq: u64) -> Result<Option<(u64, BlobId)>> {
+        Ok(self
+            .conn
+            .prepare_cached(
+                "SELECT seq, extract FROM extract_index WHERE tbl = ?1 AND seq <= ?2
+                 ORDER BY seq DESC LIMIT 1",
+            )?
+            .query_row(params![table, sq(seq)], |r| {
+                Ok((r.get::<_, i64>(0)? as u64, r.get::<_, [u8; 32]>(1)?))
+            })
+            .optional()?
+            .map(|(s, b)| (s, BlobId::from_bytes(b))))
+    }
+
+    /// Every ingest of `table`: (seq, extract), oldest first.
+    pub fn extracts_of(&self, table: &str) -> Result<Vec<(u64, BlobId)>> {
+        let mut stmt = self
+            .conn
+            .prepare_cached("SELECT seq, extract FROM extract_index WHERE tbl = ?1 ORDER BY seq")?;
+        let rows = stmt.query_map(params![table], |r| {
+            Ok((r.get::<_, i64>(0)? as u64, r.get::<_, [u8; 32]>(1)?))
+        })?;
+        let mut out = Vec::new();
+        for row in rows {
+            let (s, b) = row?;
+            out.push((s, BlobId::from_bytes(b)));
+        }
+        Ok(out)
+    }
+
+    /// Cell edits of `table` with `after < seq <= upto`, in the order they were made.
+    pub fn cell_edits(&self, table: &str, after: u64, upto: u64) -> Result<Vec<CellEditRow>> {
+        let mut stmt = self.conn.prepare_cached(
+            "SELECT row_id, col, seq, fix_idx, old, new FROM cell_edit
+             WHERE tbl = ?1 AND seq > ?2 AND seq <= ?3 ORDER BY seq, fix_idx",
+        )?;
+        let rows = stmt.query_map(params![table, sq(after), sq(upto)], |r| {
+            Ok(CellEditRow {
+                table: table.to_string(),
+                row: r.get(0)?,
+                column: r.get(1)?,
+                seq: r.get::<_, i64>(2)? as u64,
+                fix_idx: r.get::<_, i64>(3)? as u64,
+                old: r.get(4)?,
+                new: r.get(5)?,
+            })
+        })?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// Marks of `table` with `after < seq <= upto`.
+    pub fn marks(&self, table: &str, after: u64, upto: u64) -> Result<Vec<MarkRow>> {
+        let mut stmt = self.conn.prepare_cached(
+            "SELECT kind, target, seq, fix_idx FROM mark
+             WHERE tbl = ?1 AND seq > ?2 AND seq <= ?3 ORDER BY seq, fix_idx",
+        )?;
+        let rows = stmt.query_map(params![table, sq(after), sq(upto)], |r| {
+            Ok(MarkRow {
+                table: table.to_string(),
+                kind: r.get(0)?,
+                target: r.get(1)?,
+                seq: r.get::<_, i64>(2)? as u64,
+                fix_idx: r.get::<_, i64>(3)? as u64,
+            })
+        })?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// Every derived index row, sorted.
+    pub fn index_rows(&self) -> Result<IndexRows> {
+        let mut out = IndexRows::default();
+        let mut stmt = self
+            .conn
+            .prepare("SELECT tbl, seq, extract FROM extract_index")?;
+        for row in stmt.query_map([], |r| {
+            Ok((r.get(0)?, r.get::<_, i64>(1)? as u64, blob32(r, 2)?))
+        })? {
+            out.extracts.push(row?);
+        }
+        let mut stmt = self
+            .conn
+            .prepare("SELECT tbl, row_id, col, seq, fix_idx, old, new FROM cell_edit")?;
+        for row in stmt.query_map([], |r| {
+            Ok(CellEditRow {
+                table: r.get(0)?,
+                row: r.get(1)?,
+                column: r.get(2)?,
+                seq: r.get::<_, i64>(3)? as u64,
+                fix_idx: r.get::<_, i64>(4)? as u64,
+                old: r.get(5)?,
+                new: r.get(6)?,
+            })
+        })? {
+            out.cells.push(row?);
+        }
+        let mut stmt = self
+            .conn
+            .prepare("SELECT tbl, kind, target, seq, fix_idx FROM mark")?;
+        for row in stmt.query_map([], |r| {
+            Ok(MarkRow {
+                table: r.get(0)?,
+                kind: r.get(1)?,
+                target: r.get(2)?,
+                seq: r.get::<_, i64>(3)? as u64,
+                fix_idx: r.get::<_, i64>(4)? as u64,
+            })
+        })? {
+            out.marks.push(row?);
+        }
+        let mut stmt = self
+            .conn
+            .prepare("SELECT tbl, seq, hash, n_rows FROM version_index")?;
+        for row in stmt.query_map([], |r| {
+            Ok((
+                r.get(0)?,
+                r.get::<_, i64>(1)? as u64,
+                blob32(r, 2)?,
+                r.get::<_, i64>(3)? as u64,
+            ))
+        })? {
+            out.versions.push(row?);
+        }
+        let mut stmt = self.conn.prepare("SELECT name, seq, target_seq FROM tag")?;
+        for row in stmt.query_map([], |r| {
+            Ok((
+                r.get(0)?,
+                r.get::<_, i64>(1)? as u64,
+                r.get::<_, i64>(2)? as u64,
+            ))
+        })? {
+            out.tags.push(row?);
+        }
+        out.sort();
+        Ok(out)
+    }
+
+    /// The tag `name`: (tag commit seq, target seq).
+    pub fn try_tag(&self, name: &str) -> Result<Option<(u64, u64)>> {
+        Ok(self
+            .conn
+            .prepare_cached("SELECT seq, target_seq FROM tag WHERE name = ?1")?
+            .query_row(params![name], |r| {
+                Ok((r.get::<_, i64>(0)? as u64, r.get::<_, i64>(1)? as u64))
+            })
+            .optional()?)
+    }
+
+    /// Every tag: (name, tag commit seq, target seq), in order of tagging.
+    pub fn tags(&self) -> Result<Vec<(String, u64, u64)>> {
+        let mut stmt = self
+            .conn
+            .prepare("SELECT name, seq, target_seq FROM tag ORDER BY seq")?;
+        let rows = stmt.query_map([], |r| {
+            Ok((
+                r.get(0)?,
+                r.get::<_, i64>(1)? as u64,
+                r.get::<_, i64>(2)? as u64,
+            ))
+        })?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// Edits of one cell with `after < seq <= upto`, oldest first.
+    pub fn cell_history(
+        &self,
+        table: &str,
+        row: &str,
+        column: &str,
+        after: u64,
+        upto: u64,
+    ) -> Result<Vec<CellEditRow>> {
+        let mut stmt = self.conn.prepare_cached(
+            "SELECT col, seq, fix_idx, old, new FROM cell_edit
+             WHERE tbl = ?1 AND row_id = ?2 AND col = ?3 AND seq > ?4 AND seq <= ?5
+             ORDER BY seq, fix_idx",
+        )?;
+        let rows = stmt.query_map(params![table, row, column, sq(after), sq(upto)], |r| {
+            cell_edit_row(table, row, r)
+        })?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// Edits of every cell of one row with `after < seq <= upto`, oldest first.
+    pub fn row_history(
+        &self,
+        table: &str,
+        row: &str,
+        after: u64,
+        upto: u64,
+    ) -> Result<Vec<CellEditRow>> {
+        let mut stmt = self.conn.prepare_cached(
+            "SELECT col, seq, fix_idx, old, new FROM cell_edit
+             WHERE tbl = ?1 AND row_id = ?2 AND seq > ?3 AND seq <= ?4
+             ORDER BY seq, fix_idx",
+        )?;
+        let rows = stmt.query_map(params![table, row, sq(after), sq(upto)], |r| {
+            cell_edit_row(table, row, r)
+        })?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// Marks naming one target (a row id or a column) with `after < seq <= upto`.
+    pub fn marks_of(
+        &self,
+        table: &str,
+        kind: &str,
+        target: &str,
+        after: u64,
+        upto: u64,
+    ) -> Result<Vec<MarkRow>> {
+        let mut stmt = self.conn.prepare_cached(
+            "SELECT seq, fix_idx FROM mark
+             WHERE tbl = ?1 AND kind = ?2 AND target = ?3 AND seq > ?4 AND seq <= ?5
+             ORDER BY seq, fix_idx",
+        )?;
+        let rows = stmt.query_map(params![table, kind, target, sq(after), sq(upto)], |r| {
+            Ok(MarkRow {
+                table: table.to_string(),
+                kind: kind.to_string(),
+                target: target.to_string(),
+                seq: r.get::<_, i64>(0)? as u64,
+                fix_idx: r.get::<_, i64>(1)? as u64,
+            })
+        })?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// Pending fixes in the order they were recorded.
+    pub fn pending(&self) -> Result<Vec<PendingFix>> {
+        let mut stmt = self
+            .conn
+            .prepare("SELECT id, fix, added_at, note FROM pending ORDER BY id")?;
+        let rows = stmt.query_map([], |r| {
+            Ok((
+                r.get::<_, i64>(0)?,
+                r.get::<_, Vec<u8>>(1)?,
+                r.get::<_, String>(2)?,
+                r.get::<_, Option<String>>(3)?,
+            ))
+        })?;
+        let mut out = Vec::new();
+        for row in rows {
+            let (id, bytes, added_at, note) = row?;
+            let fix: Fix = postcard::from_bytes(&bytes)
+                .map_err(|e| Error::Corrupt(format!("pending fix {id} does not decode: {e}")))?;
+            out.push(PendingFix {
+                id,
+                fix,
+                added_at,
+                note,
+            });
+        }
+        Ok(out)
+    }
+
+    /// Trusted signers.
+    pub fn signers(&self) -> Result<Vec<SignerRecord>> {
+        let mut stmt = self
+            .conn
+            .prepare("SELECT key, name, email, added_at FROM signer ORDER BY added_at, name")?;
+        let rows = stmt.query_map([], |r| {
+            Ok(SignerRecord {
+                key: blob32(r, 0)?,
+                name: r.get(1)?,
+                email: r.get(2)?,
+                added_at: r.get(3)?,
+            })
+        })?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// Whether a blob is stored.
+    pub fn has_blob(&self, id: &BlobId) -> Result<bool> {
+        Ok(self
+            .conn
+            .prepare_cached("SELECT 1 FROM blob WHERE id = ?1")?
+            .query_row(params![id.as_bytes()], |_| Ok(()))
+            .optional()?
+            .is_some())
+    }
+
+    /// Whether a chunk is stored.
+    pub fn has_chunk(&self, id: &ChunkId) -> Result<bool> {
+        Ok(self
+            .conn
+            .prepare_cached("SELECT 1 FROM chunk WHERE id = ?1")?
+            .query_row(params![id.as_bytes()], |_| Ok(()))
+            .optional()?
+            .is_some())
+    }
+
+    /// The size of a stored file, if it is stored.
+    pub fn blobs_sized(&self, id: &BlobId) -> Result<Option<u64>> {
+        Ok(self
+            .conn
+            .prepare_cached("SELECT n_bytes FROM blob WHERE id = ?1")?
+            .query_row(params![id.as_bytes()], |r| r.get::<_, i64>(0))
+            .optional()?
+            .map(|n| n as u64))
+    }
+
+    /// The store file this reader reads.
+    pub fn path(&self) -> &Path {
+        Path::new(self.conn.path().unwrap_or(""))
+    }
+
+    /// Every blob: (id, size, chunk count), oldest first.
+    pub fn blobs(&self) -> Result<Vec<(BlobId, u64, u64)>> {
+        let mut stmt = self
+            .conn
+            .prepare("SELECT id, n_bytes, n_chunks FROM blob ORDER BY rowid")?;
+        let rows = stmt.query_map([], |r| {
+            Ok((
+                BlobId::from_bytes(blob32(r, 0)?),
+                r.get::<_, i64>(1)? as u64,
+                r.get::<_, i64>(2)? as u64,
+            ))
+        })?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// Every chunk id, in id order.
+    pub fn chunk_ids(&self) -> Result<Vec<ChunkId>> {
+        let mut stmt = self.conn.prepare("SELECT id FROM chunk ORDER BY id")?;
+        let rows = stmt.query_map([], |r| Ok(ChunkId::from_bytes(blob32(r, 0)?)))?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// The chunk ids of a blob, in order.
+    pub fn blob_chunks(&self, id: &BlobId) -> Result<Vec<ChunkId>> {
+        let mut stmt = self
+            .conn
+            .prepare_cached("SELECT chunk FROM blob_chunk WHERE blob = ?1 ORDER BY idx")?;
+        let rows = stmt.query_map(params![id.as_bytes()], |r| {
+            Ok(ChunkId::from_bytes(blob32(r, 0)?))
+        })?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// A chunk's uncompressed bytes, appended to `out`. Does not check the hash.
+    pub fn read_chunk(&self, id: &ChunkId, out: &mut Vec<u8>) -> Result<()> {
+        let bytes = self.chunk_bytes(id, &mut ChunkCache::default())?;
+        out.extend_from_slice(&bytes);
+        Ok(())
+    }
+
+    /// A chunk's uncompressed bytes, through `cache`. Delta chunks rebuild their reference
+    /// bytes first (which may be deltas themselves); the cache keeps that linear when a file is
+    /// read in order.
+    pub fn chunk_bytes(&self, id: &ChunkId, cache: &mut ChunkCache) -> Result<Rc<Vec<u8>>> {
+        self.chunk_bytes_at(id, cache, 0, true)
+    }
+
+    /// Like [`Reader::chunk_bytes`], for a chunk read once in order: the chunk itself is not
+    /// kept in the cache (only the reference pieces it needs are), so reading a plain file
+    /// holds one chunk, not the cache's worth.
+    pub fn chunk_bytes_once(&self, id: &ChunkId, cache: &mut ChunkCache) -> Result<Rc<Vec<u8>>> {
+        self.chunk_bytes_at(id, cache, 0, false)
+    }
+
+    fn chunk_bytes_at(
+        &self,
+        id: &ChunkId,
+        cache: &mut ChunkCache,
+        depth: usize,
+        keep: bool,
+    ) -> Result<Rc<Vec<u8>>> {
+        if let Some(hit) = cache.get(id) {
+            return Ok(hit);
+        }
+        if depth > MAX_DELTA_DEPTH {
+            return Err(Error::Corrupt(format!(
+                "chunk {id} sits under more than {MAX_DELTA_DEPTH} delta layers (a reference loop?)"
+            )));
+        }
+        type ChunkRow = (i64, i64, Option<Vec<u8>>, Option<i64>, Option<i64>, Vec<u8>);
+        let (raw_len, codec, base_blob, base_lo, base_hi, data): ChunkRow = self
+            .conn
+            .prepare_cached(
+                "SELECT raw_len, codec, base_blob, base_lo, base_hi, data FROM chunk WHERE id = ?1",
+            )?
+            .query_row(params![id.as_bytes()], |r| {
+                Ok((
+                    r.get(0)?,
+                    r.get(1)?,
+                    r.get(2)?,
+                    r.get(3)?,
+                    r.get(4)?,
+                    r.get(5)?,
+                ))
+            })
+            .optional()?
+            .ok_or_else(|| Error::Corrupt(format!("chunk {id} is missing")))?;
+        let bad = |what: String| Error::Corrupt(format!("chunk {id} {what}"));
+        let raw_len_usize = raw_len.max(0) as usize;
+        let raw = match Codec::from_code(codec) {
+            Some(plain @ (Codec::Stored | Codec::Zstd)) => {
+                codec::decode_plain(plain, data, raw_len_usize)
+                    .map_err(|e| bad(format!("does not decompress: {e}")))?
+            }
+            Some(Codec::Delta) => {
+                let (Some(base), Some(lo), Some(hi)) = (base_blob, base_lo, base_hi) else {
+                    return Err(bad("is a delta without a reference".into()));
+                };
+                let base: [u8; 32] = base
+                    .try_into()
+                    .map_err(|_| bad("names a reference that is not an id".into()))?;
+                if lo < 0 || hi < lo {
+                    return Err(bad(format!("has a reference range {lo}..{hi}")));
+                }
+                let prefix = self.blob_range_at(
+                    &BlobId::from_bytes(base),
+                    lo as u64,
+                    hi as u64,
+                    cache,
+                    depth + 1,
+                )?;
+                codec::delta_decompress(&data, &prefix, raw_len_usize)
+                    .map_err(|e| bad(format!("does not decompress against its reference: {e}")))?
+            }
+            None => return Err(bad(format!("has unknown codec {codec}"))),
+        };
+        if raw.len() as i64 != raw_len {
+            return Err(bad(format!(
+                "holds {} bytes, its record says {raw_len}",
+                raw.len()
+            )));
+        }
+        let raw = Rc::new(raw);
+        if keep {
+            cache.put(*id, raw.clone());
+        }
+        Ok(raw)
+    }
+
+    /// The chunks of a stored file with their offsets: (chunk, start, length), in order.
+    pub fn blob_layout(&self, id: &BlobId) -> Result<Vec<(ChunkId, u64, u64)>> {
+        let mut stmt = self.conn.prepare_cached(
+            "SELECT bc.chunk, c.raw_len FROM blob_chunk bc JOIN chunk c ON c.id = bc.chunk
+             WHERE bc.blob = ?1 ORDER BY bc.idx",
+        )?;
+        let rows = stmt.query_map(params![id.as_bytes()], |r| {
+            Ok((
+                ChunkId::from_bytes(blob32(r, 0)?),
+                r.get::<_, i64>(1)? as u64,
+            ))
+        })?;
+        let mut out = Vec::new();
+        let mut at = 0u64;
+        for row in rows {
+            let (chunk, len) = row?;
+            out.push((chunk, at, len));
+            at += len;
+        }
+        Ok(out)
+    }
+
+    /// Bytes `[lo, hi)` of a stored file.
+    pub fn blob_range(
+        &self,
+        id: &BlobId,
+        lo: u64,
+        hi: u64,
+        cache: &mut ChunkCache,
+    ) -> Result<Vec<u8>> {
+        self.blob_range_at(id, lo, hi, cache, 0)
+    }
+
+    fn blob_range_at(
+        &self,
+        id: &BlobId,
+        lo: u64,
+        hi: u64,
+        cache: &mut ChunkCache,
+        depth: usize,
+    ) -> Result<Vec<u8>> {
+        let layout = match cache.layout(id) {
+            Some(l) => l,
+            None => {
+                let l = Rc::new(self.blob_layout(id)?);
+                cache.put_layout(*id, l.clone());
+                l
+            }
+        };
+        let mut out = Vec::with_capacity((hi - lo) as usize);
+        for (chunk, start, len) in layout.iter() {
+            let end = start + len;
+            if end <= lo || *start >= hi {
+                continue;
+            }
+            let bytes = self.chunk_bytes_at(chunk, cache, depth, true)?;
+            let a = lo.max(*start) - start;
+            let b = hi.min(end) - start;
+            out.extend_from_slice(&bytes[a as usize..b as usize]);
+        }
+        if out.len() as u64 != hi - lo {
+            return Err(Error::Corrupt(format!(
+                "stored file {id} is shorter than the range {lo}..{hi} a delta refers to"
+            )));
+        }
+        Ok(out)
+    }
+
+    /// A reader over a stored blob's bytes.
+    pub fn open_blob(&self, id: &BlobId) -> Result<BlobReader<'a>> {
+        let chunks = self.blob_chunks(id)?;
+        if chunks.is_empty() && !self.has_blob(id)? {
+            return Err(Error::Corrupt(format!("stored file {id} is missing")));
+        }
+        Ok(BlobReader::new(*self, chunks))
+    }
+
+    /// Total bytes of compressed chunk data.
+    pub fn stored_bytes(&self) -> Result<u64> {
+        Ok(self.conn.query_row(
+            "SELECT COALESCE(SUM(LENGTH(data)), 0) FROM chunk",
+            [],
+            |r| r.get::<_, i64>(0),
+        )? as u64)
+    }
+}
+
+/// The deepest chain of deltas a read follows before calling the store damaged.
+const MAX_DELTA_DEPTH: usize = 10_000;
+
+/// A sequence number as SQLite's signed integer; `u64::MAX` ("no upper bound") stays the
+/// largest value rather than wrapping to -1.
+pub(super) fn sq(seq: u64) -> i64 {
+    seq.min(i64::MAX as u64) as i64
+}
+
+pub(super) fn blob32(r: &rusqlite::Row<'_>, idx: usize) -> rusqlite::Result<[u8; 32]> {
+    let v: Vec<u8> = r.get(idx)?;
+    v.try_into().map_err(|v: Vec<u8>| {
+        rusqlite::Error::FromSqlConversionFailure(
+            idx,
+            rusqlite::types::Type::Blob,
+            format!("expected 32 bytes, found {}", v.len()).into(),
+        )
+    })
+}
+
+fn cell_edit_row(table: &str, row: &str, r: &rusqlite::Row<'_>) -> rusqlite::Result<CellEditRow> {
+    Ok(CellEditRow {
+        table: table.to_string(),
+        row: row.to_string(),
+        column: r.get(0)?,
+        seq: r.get::<_, i64>(1)? as u64,
+        fix_idx: r.get::<_, i64>(2)? as u64,
+        old: r.get(3)?,
+        new: r.get(4)?,
+    })
+}
+
+fn stored_commit(r: &rusqlite::Row<'_>) -> rusqlite::Result<StoredCommit> {
+    Ok(StoredCommit {
+        seq: r.get::<_, i64>(0)? as u64,
+        id: CommitId::from_bytes(blob32(r, 1)?),
+        body: r.get(2)?,
+        signature: r.get(3)?,
+    })
+}
+
+/// Row ids in the index are plain text; this is the one conversion.
+pub fn row_text(row: &RowId) -> &str {
+    row.as_str()
+}

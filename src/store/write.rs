@@ -1,0 +1,162 @@
+//! The write transaction: chunks, stored files, commits with their derived index rows, pending
+//! fixes and trusted signers. Dropped without [`WriteTx::commit`], nothing changes.
+
+use super::codec::EncodedPiece;
+use super::index::IndexRows;
+use super::read::Reader;
+use super::sql_err_busy;
+use crate::error::Result;
+use crate::hash::{BlobId, ChunkId, CommitId};
+use crate::model::{CommitBody, Fix};
+use rusqlite::params;
+
+/// One all-or-nothing write. Dropped without [`WriteTx::commit`], nothing changes.
+pub struct WriteTx<'s> {
+    pub(super) tx: rusqlite::Transaction<'s>,
+}
+
+impl WriteTx<'_> {
+    /// Read access inside the transaction.
+    pub fn read(&self) -> Reader<'_> {
+        Reader { conn: &self.tx }
+    }
+
+    /// Make the write durable.
+    pub fn commit(self) -> Result<()> {
+        self.tx.commit().map_err(sql_err_busy)
+    }
+
+    /// Store an encoded piece unless one with the same id is there (a piece without data is
+    /// one the store already holds).
+    pub fn put_piece(&self, piece: &EncodedPiece) -> Result<()> {
+        let Some(data) = &piece.data else {
+            return Ok(());
+        };
+        let (blob, lo, hi) = match &piece.base {
+            Some(b) => (
+                Some(b.blob.as_bytes().to_vec()),
+                Some(b.lo as i64),
+                Some(b.hi as i64),
+            ),
+            None => (None, None, None),
+        };
+        self.tx
+            .prepare_cached(
+                "INSERT OR IGNORE INTO chunk (id, raw_len, codec, base_blob, base_lo, base_hi, data)
+                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+            )?
+            .execute(params![
+                piece.id.as_bytes(),
+                piece.raw_len as i64,
+                piece.codec.code(),
+                blob,
+                lo,
+                hi,
+                data
+            ])?;
+        Ok(())
+    }
+
+    /// Record a blob made of `chunks`, unless it is stored already.
+    pub fn put_blob(&self, id: &BlobId, n_bytes: u64, chunks: &[ChunkId]) -> Result<()> {
+        if self.read().has_blob(id)? {
+            return Ok(());
+        }
+        self.tx.execute(
+            "INSERT INTO blob (id, n_bytes, n_chunks) VALUES (?1, ?2, ?3)",
+            params![id.as_bytes(), n_bytes as i64, chunks.len() as i64],
+        )?;
+        let mut stmt = self
+            .tx
+            .prepare_cached("INSERT INTO blob_chunk (blob, idx, chunk) VALUES (?1, ?2, ?3)")?;
+        for (i, c) in chunks.iter().enumerate() {
+            stmt.execute(params![id.as_bytes(), i as i64, c.as_bytes()])?;
+        }
+        Ok(())
+    }
+
+    /// Append a commit and its derived index rows.
+    pub fn append_commit(
+        &self,
+        body: &CommitBody,
+        body_bytes: &[u8],
+        id: &CommitId,
+        signature: &[u8],
+    ) -> Result<()> {
+        self.tx.execute(
+            "INSERT INTO commit_log (seq, id, body, signature) VALUES (?1, ?2, ?3, ?4)",
+            params![body.seq as i64, id.as_bytes(), body_bytes, signature],
+        )?;
+        let rows = IndexRows::from_body(body);
+        for (tbl, seq, extract) in &rows.extracts {
+            self.tx.execute(
+                "INSERT INTO extract_index (tbl, seq, extract) VALUES (?1, ?2, ?3)",
+                params![tbl, *seq as i64, extract],
+            )?;
+        }
+        let mut stmt = self.tx.prepare_cached(
+            "INSERT INTO cell_edit (tbl, row_id, col, seq, fix_idx, old, new)
+             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+        )?;
+        for c in &rows.cells {
+            stmt.execute(params![
+                c.table,
+                c.row,
+                c.column,
+                c.seq as i64,
+                c.fix_idx as i64,
+                c.old,
+                c.new
+            ])?;
+        }
+        for m in &rows.marks {
+            self.tx.execute(
+                "INSERT INTO mark (tbl, kind, target, seq, fix_idx) VALUES (?1, ?2, ?3, ?4, ?5)",
+                params![m.table, m.kind, m.target, m.seq as i64, m.fix_idx as i64],
+            )?;
+        }
+        for (name, seq, target) in &rows.tags {
+            self.tx.execute(
+                "INSERT INTO tag (name, seq, target_seq) VALUES (?1, ?2, ?3)",
+                params![name, *seq as i64, *target as i64],
+            )?;
+        }
+        for (tbl, seq, hash, n_rows) in &rows.versions {
+            self.tx.execute(
+                "INSERT INTO version_index (tbl, seq, hash, n_rows) VALUES (?1, ?2, ?3, ?4)",
+                params![tbl, *seq as i64, hash, *n_rows as i64],
+            )?;
+        }
+        Ok(())
+    }
+
+    /// Record a fix as pending, with an optional note for `status`.
+    pub fn add_pending(&self, fix: &Fix, note: Option<&str>, now: &str) -> Result<i64> {
+        let bytes = postcard::to_stdvec(fix)?;
+        self.tx.execute(
+            "INSERT INTO pending (tbl, fix, note, added_at) VALUES (?1, ?2, ?3, ?4)",
+            params![fix.table, bytes, note, now],
+        )?;
+        Ok(self.tx.last_insert_rowid())
+    }
+
+    /// Drop every pending fix; returns how many there were.
+    pub fn clear_pending(&self) -> Result<usize> {
+        Ok(self.tx.execute("DELETE FROM pending", [])?)
+    }
+
+    /// Trust a signer (no change when trusted already).
+    pub fn trust_signer(
+        &self,
+        key: &[u8; 32],
+        name: &str,
+        email: Option<&str>,
+        now: &str,
+    ) -> Result<bool> {
+        let n = self.tx.execute(
+            "INSERT OR IGNORE INTO signer (key, name, email, added_at) VALUES (?1, ?2, ?3, ?4)",
+            params![key, name, email, now],
+        )?;
+        Ok(n > 0)
+    }
+}
