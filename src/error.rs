@@ -41,6 +41,63 @@ pub enum Error {
         /// What is wrong.
         problem: String,
     },
+    /// A path that names a folder where a file is needed (an extract, evidence, rules).
+    #[error("{0} is a folder, not a file")]
+    NotAFile(PathBuf),
+    /// The key named at ingest does not identify each row.
+    #[error("{path}: {problem}")]
+    DuplicateKey {
+        /// The extract file.
+        path: PathBuf,
+        /// Which key values repeat, and on which lines.
+        problem: String,
+    },
+    /// A rules file that cannot be used; the line, column and key are kept.
+    #[error("{path}: {error}")]
+    BadRules {
+        /// The rules file.
+        path: PathBuf,
+        /// Where and what.
+        error: crate::checks::RuleError,
+    },
+    /// A rules file that is not UTF-8 text.
+    #[error("{path}: not UTF-8 text (byte offset {offset})")]
+    NotText {
+        /// The file.
+        path: PathBuf,
+        /// The first bad byte.
+        offset: usize,
+    },
+    /// A table has pending fixes, so an operation that needs a settled table is refused.
+    #[error("table '{table}' has pending fixes; commit or discard them before {action}")]
+    PendingFixes {
+        /// Table.
+        table: String,
+        /// What was refused, as "a new extract" or "carrying".
+        action: &'static str,
+    },
+    /// A fix that would change a key column.
+    #[error(
+        "column '{column}' is part of the key of '{table}'; rows are named by it, so its values cannot be changed"
+    )]
+    KeyColumn {
+        /// Table.
+        table: String,
+        /// Column.
+        column: String,
+    },
+    /// A tag name that is already used (tags never move).
+    #[error(
+        "tag '{name}' already names commit {target} (tagged in commit {seq}); tags never move, choose another name"
+    )]
+    TagTaken {
+        /// The name.
+        name: String,
+        /// The commit it names.
+        target: u64,
+        /// The commit that made the tag.
+        seq: u64,
+    },
     /// No store was found walking up from a folder.
     #[error("no emend store in {0} or any parent folder")]
     NoStore(PathBuf),
@@ -143,6 +200,16 @@ impl Error {
             Error::BadExtract { .. } | Error::BadFile { .. } => {
                 "nothing was stored; fix the file (or give --delimiter / --encoding) and ingest again".into()
             }
+            Error::DuplicateKey { .. } => {
+                "nothing was stored; name a key that identifies each row (--key A --key B for a composite key), or ingest without --key".into()
+            }
+            Error::BadRules { .. } | Error::NotText { .. } => {
+                "nothing was adopted; fix the rules file (its format is in docs/rules.md) and run again".into()
+            }
+            Error::PendingFixes { .. } => {
+                "'emend status' lists them; 'emend commit -m ...' or 'emend discard'".into()
+            }
+            Error::TagTaken { .. } => "'emend tags' lists the names in use".into(),
             _ => return None,
         })
     }

@@ -1,7 +1,7 @@
 //! `rules` (adopt a rules file, signed) and `check` (apply the rules in force to a version).
 
-use super::FixMeta;
 use super::context::CliContext;
+use super::fixes::FixMeta;
 use super::out::{self, BAD, BOLD, DIM, GOOD, paint};
 use anyhow::Result;
 use clap::Args;

@@ -1,7 +1,6 @@
 //! The fix commands: set, recode, missing, exclude, distrust. Each records one pending fix with
 //! its reason; nothing changes in history until `emend commit`.
 
-use super::FixMeta;
 use super::context::CliContext;
 use super::out::{self, BOLD, DIM, GOOD, paint};
 use anyhow::{Context, Result, bail};
@@ -11,6 +10,20 @@ use emend::model::{Fix, FixAction};
 use emend::query;
 use std::io::Write;
 use std::path::PathBuf;
+
+/// Shared options of every fix command.
+#[derive(Args, Debug, Clone)]
+pub struct FixMeta {
+    /// Why this fix is right (required, recorded in the signed commit)
+    #[arg(long, value_name = "REASON")]
+    pub why: String,
+    /// A file that backs the decision (stored content-addressed); may be repeated
+    #[arg(long, value_name = "FILE")]
+    pub evidence: Vec<PathBuf>,
+    /// Who was consulted about it
+    #[arg(long, value_name = "WHO")]
+    pub consulted: Option<String>,
+}
 
 #[derive(Args, Debug)]
 pub struct SetArgs {

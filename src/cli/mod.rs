@@ -23,7 +23,6 @@ use context::CliContext;
 
 use anyhow::Result;
 use clap::{Args, Parser, Subcommand};
-use std::path::PathBuf;
 
 /// Exit code: the command ran and the answer is yes (or it did what was asked).
 pub const EXIT_OK: i32 = 0;
@@ -123,20 +122,6 @@ struct JsonFlag {
     /// Print JSON (the shape is documented in docs/json.md)
     #[arg(long)]
     json: bool,
-}
-
-/// Shared options of every fix command.
-#[derive(Args, Debug, Clone)]
-pub struct FixMeta {
-    /// Why this fix is right (required, recorded in the signed commit)
-    #[arg(long, value_name = "REASON")]
-    why: String,
-    /// A file that backs the decision (stored content-addressed); may be repeated
-    #[arg(long, value_name = "FILE")]
-    evidence: Vec<PathBuf>,
-    /// Who was consulted about it
-    #[arg(long, value_name = "WHO")]
-    consulted: Option<String>,
 }
 
 /// Run the command line; returns the process exit code.

@@ -3,6 +3,7 @@
 
 use anstyle::{AnsiColor, Style};
 use std::io::Write;
+use unicode_width::{UnicodeWidthChar, UnicodeWidthStr};
 
 /// Headings and names.
 pub const BOLD: Style = Style::new().bold();
@@ -48,8 +49,9 @@ pub fn json(value: &serde_json::Value) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// Render rows as a plain table with aligned columns; cells longer than `max_width` characters
-/// are cut with an ellipsis. `styles` gives an optional style per cell.
+/// Render rows as a plain table with aligned columns, measured in terminal columns (a wide
+/// character takes two); cells wider than `max_width` are cut with an ellipsis. `styles` gives
+/// an optional style per cell.
 pub fn table(header: &[String], rows: &[Vec<(String, Option<Style>)>], max_width: usize) -> String {
     let cut = |s: &str| -> String {
         let clean: String = s
@@ -62,15 +64,24 @@ pub fn table(header: &[String], rows: &[Vec<(String, Option<Style>)>], max_width
                 }
             })
             .collect();
-        if clean.chars().count() > max_width {
-            let mut t: String = clean.chars().take(max_width.saturating_sub(1)).collect();
+        if clean.width() > max_width {
+            let mut t = String::new();
+            let mut used = 0;
+            for c in clean.chars() {
+                let w = c.width().unwrap_or(0);
+                if used + w + 1 > max_width {
+                    break;
+                }
+                used += w;
+                t.push(c);
+            }
             t.push('…');
             t
         } else {
             clean
         }
     };
-    let mut widths: Vec<usize> = header.iter().map(|h| cut(h).chars().count()).collect();
+    let mut widths: Vec<usize> = header.iter().map(|h| cut(h).width()).collect();
     let cells: Vec<Vec<(String, Option<Style>)>> = rows
         .iter()
         .map(|r| r.iter().map(|(t, s)| (cut(t), *s)).collect())
@@ -78,14 +89,14 @@ pub fn table(header: &[String], rows: &[Vec<(String, Option<Style>)>], max_width
     for r in &cells {
         for (i, (t, _)) in r.iter().enumerate() {
             if i < widths.len() {
-                widths[i] = widths[i].max(t.chars().count());
+                widths[i] = widths[i].max(t.width());
             }
         }
     }
     let mut out = String::new();
     let line = |out: &mut String, r: &[(String, Option<Style>)]| {
         for (i, (t, s)) in r.iter().enumerate() {
-            let pad = widths[i].saturating_sub(t.chars().count());
+            let pad = widths[i].saturating_sub(t.width());
             let last = i + 1 == r.len();
             match s {
                 Some(st) => out.push_str(&paint(*st, t)),
@@ -125,5 +136,25 @@ pub fn shell_quote(s: &str) -> String {
         s.to_string()
     } else {
         format!("'{}'", s.replace('\'', "'\\''"))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn wide_characters_take_two_columns_and_the_next_column_still_lines_up() {
+        // Source: Unicode Standard Annex #11 (East Asian Width): CJK ideographs are Wide, so
+        // one takes two terminal columns; the widths come from the unicode-width crate.
+        let rows = vec![
+            vec![("河川".to_string(), None), ("x".to_string(), None)],
+            vec![("ab".to_string(), None), ("y".to_string(), None)],
+        ];
+        let text = table(&["site".into(), "v".into()], &rows, 40);
+        let lines: Vec<&str> = text.lines().collect();
+        let col = |line: &str, needle: char| line[..line.find(needle).unwrap()].width();
+        assert_eq!(col(lines[1], 'x'), col(lines[2], 'y'));
+        assert_eq!(col(lines[1], 'x'), 6, "4 columns of text, then 2 of gap");
     }
 }

@@ -162,10 +162,7 @@ pub fn open_input(path: &Path) -> Result<File> {
     let file = File::open(path).map_err(|e| Error::io(path, e))?;
     let meta = file.metadata().map_err(|e| Error::io(path, e))?;
     if meta.is_dir() {
-        return Err(Error::BadFile {
-            path: path.to_path_buf(),
-            problem: "is a folder, not a file".into(),
-        });
+        return Err(Error::NotAFile(path.to_path_buf()));
     }
     Ok(file)
 }
@@ -390,7 +387,7 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
                 && let Some(msg) =
                     list_duplicates(path, delimiter, encoding, &key_idx, &header, &dup)?
             {
-                return Err(Error::BadFile {
+                return Err(Error::DuplicateKey {
                     path: path.to_path_buf(),
                     problem: msg,
                 });

@@ -14,26 +14,21 @@ use std::path::{Path, PathBuf};
 /// Parse a rules file and check it names only columns of `header`; errors name the file,
 /// line and key.
 pub fn parse_for(path: &Path, text: &str, header: &[String]) -> Result<RuleSet> {
-    let rules = RuleSet::parse(text).map_err(|e| Error::BadFile {
+    let bad = |error| Error::BadRules {
         path: path.to_path_buf(),
-        problem: e.to_string(),
-    })?;
-    Checker::new(&rules, header).map_err(|e| Error::BadFile {
-        path: path.to_path_buf(),
-        problem: e.to_string(),
-    })?;
+        error,
+    };
+    let rules = RuleSet::parse(text).map_err(bad)?;
+    Checker::new(&rules, header).map_err(bad)?;
     Ok(rules)
 }
 
 /// Read a rules file from disk as UTF-8 text.
 pub fn read_text(path: &Path) -> Result<String> {
     let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
-    String::from_utf8(bytes).map_err(|e| Error::BadFile {
+    String::from_utf8(bytes).map_err(|e| Error::NotText {
         path: path.to_path_buf(),
-        problem: format!(
-            "not UTF-8 text (byte offset {})",
-            e.utf8_error().valid_up_to()
-        ),
+        offset: e.utf8_error().valid_up_to(),
     })
 }
 

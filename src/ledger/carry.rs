@@ -130,9 +130,10 @@ pub fn carry(
         )));
     }
     if reader.pending()?.iter().any(|p| p.fix.table == table) {
-        return Err(Error::Invalid(format!(
-            "table '{table}' has pending fixes; commit or discard them before carrying"
-        )));
+        return Err(Error::PendingFixes {
+            table: table.to_string(),
+            action: "carrying",
+        });
     }
     let upto = match from {
         Some(text) => {

@@ -56,10 +56,10 @@ pub fn record_fix(store: &mut Store, req: FixRequest, now: &str) -> Result<Recor
         if version.def.key.iter().any(|k| k == col)
             && !matches!(req.action, FixAction::Distrust { .. })
         {
-            return Err(Error::Invalid(format!(
-                "column '{col}' is part of the key of '{}'; rows are named by it, so its values cannot be changed",
-                req.table
-            )));
+            return Err(Error::KeyColumn {
+                table: req.table.clone(),
+                column: col.to_string(),
+            });
         }
     }
     match &req.action {

@@ -43,10 +43,10 @@ pub fn ingest(
     {
         let reader = tx.read();
         if reader.pending()?.iter().any(|p| p.fix.table == opts.table) {
-            return Err(Error::Invalid(format!(
-                "table '{}' has pending fixes; commit or discard them before a new extract",
-                opts.table
-            )));
+            return Err(Error::PendingFixes {
+                table: opts.table.clone(),
+                action: "a new extract",
+            });
         }
         if let Some((seq, extract)) = reader.extract_at(&opts.table, u64::MAX)? {
             if opts.key.is_empty() {

@@ -38,9 +38,11 @@ pub fn tag(
     let tx = store.transaction()?;
     let reader = tx.read();
     if let Some((seq, target)) = reader.try_tag(name)? {
-        return Err(Error::Invalid(format!(
-            "tag '{name}' already names commit {target} (tagged in commit {seq}); tags never move, choose another name"
-        )));
+        return Err(Error::TagTaken {
+            name: name.to_string(),
+            target,
+            seq,
+        });
     }
     let resolved = resolve(&reader, rev)?;
     if resolved.raw {

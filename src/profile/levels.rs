@@ -92,92 +92,31 @@ pub fn fold_key(text: &str) -> String {
     out
 }
 
-/// Levenshtein distance in Unicode code points (insertions, deletions, substitutions).
+/// Levenshtein distance in Unicode code points (insertions, deletions, substitutions), from
+/// the `strsim` crate.
 ///
 /// ```
 /// use emend::profile::levels::levenshtein;
 /// assert_eq!(levenshtein("kitten", "sitting"), 3);
 /// ```
 pub fn levenshtein(a: &str, b: &str) -> usize {
-    let a: Vec<char> = a.chars().collect();
-    let b: Vec<char> = b.chars().collect();
-    let mut prev: Vec<usize> = (0..=b.len()).collect();
-    let mut cur = vec![0; b.len() + 1];
-    for (i, ca) in a.iter().enumerate() {
-        cur[0] = i + 1;
-        for (j, cb) in b.iter().enumerate() {
-            let substitute = prev[j] + usize::from(ca != cb);
-            cur[j + 1] = substitute.min(prev[j + 1] + 1).min(cur[j] + 1);
-        }
-        std::mem::swap(&mut prev, &mut cur);
-    }
-    prev[b.len()]
+    strsim::levenshtein(a, b)
 }
 
-/// Jaro similarity in [0, 1]: `m` matching code points (equal and at most
-/// `⌊max(|a|, |b|)/2⌋ − 1` apart), `t` half the out-of-order matches,
-/// `J = (m/|a| + m/|b| + (m − t)/m) / 3`, and 0 when `m = 0`. Two empty strings give 1.
+/// Jaro similarity in [0, 1] (Jaro 1989), from the `strsim` crate; two empty strings give 1.
 pub fn jaro(a: &str, b: &str) -> f64 {
-    let a: Vec<char> = a.chars().collect();
-    let b: Vec<char> = b.chars().collect();
-    if a.is_empty() && b.is_empty() {
-        return 1.0;
-    }
-    if a.is_empty() || b.is_empty() {
-        return 0.0;
-    }
-    let window = (a.len().max(b.len()) / 2).saturating_sub(1);
-    let mut b_used = vec![false; b.len()];
-    let mut a_matched = Vec::with_capacity(a.len());
-    for (i, ca) in a.iter().enumerate() {
-        let lo = i.saturating_sub(window);
-        let hi = (i + window + 1).min(b.len());
-        for j in lo..hi {
-            if !b_used[j] && b[j] == *ca {
-                b_used[j] = true;
-                a_matched.push(*ca);
-                break;
-            }
-        }
-    }
-    let m = a_matched.len();
-    if m == 0 {
-        return 0.0;
-    }
-    let b_matched = b
-        .iter()
-        .zip(&b_used)
-        .filter(|(_, used)| **used)
-        .map(|(c, _)| c);
-    let half_transpositions = a_matched
-        .iter()
-        .zip(b_matched)
-        .filter(|(x, y)| x != y)
-        .count();
-    let m = m as f64;
-    let t = (half_transpositions / 2) as f64;
-    (m / a.len() as f64 + m / b.len() as f64 + (m - t) / m) / 3.0
+    strsim::jaro(a, b)
 }
 
-/// Jaro–Winkler similarity: `J + l·0.1·(1 − J)` with `l` the common prefix length capped at
-/// 4, applied only when `J > 0.7` (Winkler's boost threshold).
+/// Jaro–Winkler similarity (Winkler 1990): `J + l·0.1·(1 − J)` with `l` the common prefix
+/// length capped at 4, applied only when `J > 0.7`; from the `strsim` crate.
 ///
 /// ```
 /// use emend::profile::levels::jaro_winkler;
 /// assert!((jaro_winkler("MARTHA", "MARHTA") - 0.9611).abs() < 1e-4);
 /// ```
 pub fn jaro_winkler(a: &str, b: &str) -> f64 {
-    let j = jaro(a, b);
-    if j <= 0.7 {
-        return j;
-    }
-    let prefix = a
-        .chars()
-        .zip(b.chars())
-        .take(4)
-        .take_while(|(x, y)| x == y)
-        .count();
-    j + prefix as f64 * 0.1 * (1.0 - j)
+    strsim::jaro_winkler(a, b)
 }
 
 /// A level with how many cells hold it.

@@ -1,7 +1,7 @@
 //! Streaming reads of stored files, one decompressed chunk at a time, and the small cache that
 //! keeps reads of delta chunks linear.
 
-use super::Reader;
+use super::read::Reader;
 use crate::hash::{BlobId, ChunkId};
 use std::collections::{HashMap, VecDeque};
 use std::io::Read;

@@ -19,6 +19,7 @@ pub use codec::{Codec, DeltaBase, EncodedPiece, PIECE_SIZE, PieceEncoder};
 pub use index::{CellEditRow, IndexRows, MarkRow};
 pub use read::{PendingFix, Reader, SignerRecord, StoredCommit, row_text};
 pub use write::WriteTx;
+use write::sql_err_busy;
 
 use crate::error::{Error, Result};
 use rusqlite::{Connection, OpenFlags, TransactionBehavior, params};
@@ -43,18 +44,6 @@ const BUSY_WAIT: Duration = Duration::from_secs(10);
 pub struct Store {
     conn: Connection,
     path: PathBuf,
-}
-
-pub(crate) fn sql_err_busy(e: rusqlite::Error) -> Error {
-    if let rusqlite::Error::SqliteFailure(f, _) = &e
-        && matches!(
-            f.code,
-            rusqlite::ErrorCode::DatabaseBusy | rusqlite::ErrorCode::DatabaseLocked
-        )
-    {
-        return Error::Busy;
-    }
-    Error::Sqlite(e)
 }
 
 impl Store {

@@ -2,9 +2,9 @@
 //! signers, chunks and stored files. [`Reader`] works both on an open store and inside a write
 //! transaction.
 
+use super::blob::{BlobReader, ChunkCache};
 use super::codec::{self, Codec};
 use super::index::{CellEditRow, IndexRows, MarkRow};
-use super::{BlobReader, ChunkCache};
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, ChunkId, CommitId};
 use crate::model::{Fix, RowId};

@@ -4,8 +4,7 @@
 use super::codec::EncodedPiece;
 use super::index::IndexRows;
 use super::read::Reader;
-use super::sql_err_busy;
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::hash::{BlobId, ChunkId, CommitId};
 use crate::model::{CommitBody, Fix};
 use rusqlite::params;
@@ -159,4 +158,17 @@ impl WriteTx<'_> {
         )?;
         Ok(n > 0)
     }
+}
+
+/// A write refused because another process holds the lock becomes [`Error::Busy`].
+pub(super) fn sql_err_busy(e: rusqlite::Error) -> Error {
+    if let rusqlite::Error::SqliteFailure(f, _) = &e
+        && matches!(
+            f.code,
+            rusqlite::ErrorCode::DatabaseBusy | rusqlite::ErrorCode::DatabaseLocked
+        )
+    {
+        return Error::Busy;
+    }
+    Error::Sqlite(e)
 }

@@ -20,6 +20,7 @@ mod rebuild;
 mod report;
 mod roundtrip;
 mod rules;
+mod snapshots;
 mod store;
 mod tamper;
 mod walkthrough;
