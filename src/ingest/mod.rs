@@ -562,3 +562,63 @@ fn list_duplicates(
         shown.join("; ")
     )))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn try_ingest(csv: &str, key: &[&str]) -> (tempfile::TempDir, Result<IngestOutcome>) {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("x.csv");
+        std::fs::write(&path, csv).unwrap();
+        let mut store = Store::init(dir.path(), "2026-10-01T09:00:00Z").unwrap();
+        let tx = store.transaction().unwrap();
+        let opts = IngestOptions {
+            table: "x".into(),
+            key: key.iter().map(|k| k.to_string()).collect(),
+            ..IngestOptions::default()
+        };
+        let out = store_extract(&tx, &path, &opts);
+        (dir, out)
+    }
+
+    #[test]
+    fn a_clean_extract_is_counted_and_named_by_its_key() {
+        let (_dir, out) = try_ingest("id,v\r\nA,1\r\nB,2\r\n\r\n", &["id"]);
+        let out = out.unwrap();
+        assert_eq!(out.record.n_rows, 2);
+        assert_eq!(out.record.header, ["id", "v"]);
+        assert!(out.record.dialect.crlf);
+        assert_eq!(out.record.dialect.delimiter, b',');
+    }
+
+    #[test]
+    fn problems_name_the_file_line_and_field_and_each_kind_is_its_own_error() {
+        let (_dir, dup) = try_ingest("id,v\nA,1\nB,2\nA,3\n", &["id"]);
+        match dup {
+            Err(Error::DuplicateKey { problem, .. }) => {
+                assert!(problem.contains("'A' on lines 2, 4"), "{problem}")
+            }
+            other => panic!("{other:?}"),
+        }
+        let (_dir, ragged) = try_ingest("id,v\nA,1\nB\n", &["id"]);
+        assert!(
+            matches!(ragged, Err(Error::BadExtract { line: 3, .. })),
+            "{ragged:?}"
+        );
+        let (_dir, blank) = try_ingest("id,v\nA,1\n ,2\n", &["id"]);
+        assert!(
+            matches!(
+                blank,
+                Err(Error::BadExtract {
+                    line: 3,
+                    column: 1,
+                    ..
+                })
+            ),
+            "{blank:?}"
+        );
+        let dir = tempfile::tempdir().unwrap();
+        assert!(matches!(open_input(dir.path()), Err(Error::NotAFile(_))));
+    }
+}

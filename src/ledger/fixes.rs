@@ -6,7 +6,7 @@ use super::apply::FixApplier;
 use super::seal::{CommitContext, CommitOutcome, seal};
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, Digest};
-use crate::model::{CellEdit, Change, Evidence, Fix, FixAction, FixRecord, TableVersion};
+use crate::model::{CellEdit, Change, Evidence, Fix, FixAction, FixRecord, RowId, TableVersion};
 use crate::query::Version;
 use crate::store::{PIECE_SIZE, PieceEncoder, Reader, Store, WriteTx};
 use crate::table::VersionHashBuilder;
@@ -62,26 +62,23 @@ pub fn record_fix(store: &mut Store, req: FixRequest, now: &str) -> Result<Recor
             });
         }
     }
+    let find = |row: &RowId| {
+        version
+            .find_row(&reader, row)?
+            .ok_or_else(|| Error::UnknownRow {
+                table: req.table.clone(),
+                row: row.to_string(),
+            })
+    };
     match &req.action {
         FixAction::Set { row, column, value } => {
-            let (_, cells, _) =
-                version
-                    .find_row(&reader, row)?
-                    .ok_or_else(|| Error::UnknownRow {
-                        table: req.table.clone(),
-                        row: row.to_string(),
-                    })?;
+            let (_, cells, _) = find(row)?;
             if &cells[version.col_idx(column)?] == value {
                 note = Some(format!("row {row} {column} already holds this value"));
             }
         }
         FixAction::Exclude { row } => {
-            version
-                .find_row(&reader, row)?
-                .ok_or_else(|| Error::UnknownRow {
-                    table: req.table.clone(),
-                    row: row.to_string(),
-                })?;
+            find(row)?;
         }
         FixAction::Recode { pairs, .. } => {
             if pairs.is_empty() {
@@ -281,4 +278,103 @@ pub fn commit_pending(
     tx.clear_pending()?;
     tx.commit()?;
     Ok(done)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::testkit::{Kit, NOW};
+    use super::*;
+    use crate::query::{Version, decode};
+
+    #[test]
+    fn a_commit_resolves_each_fix_to_the_exact_cells_it_changes() {
+        let mut kit = Kit::new();
+        kit.fix(FixAction::Recode {
+            column: "site".into(),
+            pairs: vec![("mill craek".into(), "Mill Creek".into())],
+        });
+        kit.fix(FixAction::Missing {
+            column: "ph".into(),
+            codes: vec!["-999".into()],
+        });
+        kit.fix(FixAction::Set {
+            row: RowId("S-2".into()),
+            column: "ph".into(),
+            value: Some("7.1".into()),
+        });
+        let seq = kit.commit("first pass");
+        assert_eq!(seq, 2);
+        let reader = kit.store.read();
+        let body = decode(&reader.try_commit(seq).unwrap().unwrap()).unwrap();
+        let Change::Fixes(records) = &body.change else {
+            panic!("a fixes commit")
+        };
+        let cells: Vec<Vec<(&str, &str, Option<&str>)>> = records
+            .iter()
+            .map(|r| {
+                r.edits
+                    .iter()
+                    .map(|e| (e.row.as_str(), e.column.as_str(), e.new.as_deref()))
+                    .collect()
+            })
+            .collect();
+        assert_eq!(
+            cells,
+            vec![
+                vec![
+                    ("S-1", "site", Some("Mill Creek")),
+                    ("S-3", "site", Some("Mill Creek"))
+                ],
+                vec![("S-3", "ph", None)],
+                vec![("S-2", "ph", Some("7.1"))],
+            ]
+        );
+        // The hash signed into the commit is the hash of the version rebuilt from the extract.
+        let rebuilt = Version::load(&reader, "samples", seq, false).unwrap();
+        assert_eq!(rebuilt.hash(&reader).unwrap().0, body.versions[0].hash);
+        assert!(reader.pending().unwrap().is_empty());
+    }
+
+    #[test]
+    fn fixes_that_cannot_apply_are_refused_before_they_are_recorded() {
+        let mut kit = Kit::new();
+        let req = |action| FixRequest {
+            table: "samples".into(),
+            action,
+            why: "test".into(),
+            evidence: Vec::new(),
+            consulted: None,
+        };
+        let key = record_fix(
+            &mut kit.store,
+            req(FixAction::Set {
+                row: RowId("S-1".into()),
+                column: "sample_id".into(),
+                value: Some("S-9".into()),
+            }),
+            NOW,
+        );
+        assert!(matches!(key, Err(Error::KeyColumn { .. })), "{key:?}");
+        let row = record_fix(
+            &mut kit.store,
+            req(FixAction::Exclude {
+                row: RowId("S-404".into()),
+            }),
+            NOW,
+        );
+        assert!(matches!(row, Err(Error::UnknownRow { .. })), "{row:?}");
+        let mut no_reason = req(FixAction::Distrust {
+            column: "ph".into(),
+        });
+        no_reason.why = "  ".into();
+        assert!(matches!(
+            record_fix(&mut kit.store, no_reason, NOW),
+            Err(Error::EmptyReason)
+        ));
+        assert!(kit.store.read().pending().unwrap().is_empty());
+        let signer = super::super::testkit::signer();
+        let ctx = super::super::testkit::ctx(&signer);
+        let nothing = commit_pending(&mut kit.store, "nothing", &ctx);
+        assert!(matches!(nothing, Err(Error::NothingPending)));
+    }
 }

@@ -17,6 +17,8 @@ pub mod fixes;
 pub mod ingest;
 pub mod seal;
 pub mod tag;
+#[cfg(test)]
+pub(crate) mod testkit;
 pub mod trust;
 
 pub use carry::carry;

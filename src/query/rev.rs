@@ -85,3 +85,95 @@ pub fn parse_row(reader: &Reader<'_>, table: &str, text: &str) -> Result<RowId> 
     let def = ingest_record(reader, seq)?;
     Ok(RowId::parse_user(text, def.key.len()))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::ledger::testkit::Kit;
+    use crate::model::FixAction;
+    use crate::query::diff::diff;
+    use crate::query::why::why_cell;
+
+    fn kit_with_a_fix() -> Kit {
+        let mut kit = Kit::new();
+        kit.fix(FixAction::Set {
+            row: RowId("S-2".into()),
+            column: "ph".into(),
+            value: Some("7.1".into()),
+        });
+        kit.commit("decimal point");
+        kit
+    }
+
+    #[test]
+    fn revisions_resolve_by_number_word_and_id_prefix() {
+        let kit = kit_with_a_fix();
+        let reader = kit.store.read();
+        let rev = |t: &str| resolve(&reader, t);
+        assert_eq!(rev("latest").unwrap(), Rev { seq: 2, raw: false });
+        assert_eq!(rev("raw").unwrap(), Rev { seq: 2, raw: true });
+        assert_eq!(rev("1").unwrap(), Rev { seq: 1, raw: false });
+        let id = reader.try_commit(1).unwrap().unwrap().id.to_string();
+        assert_eq!(rev(&id[..12]).unwrap(), Rev { seq: 1, raw: false });
+        for bad in ["0", "3", "nope", ""] {
+            assert!(
+                matches!(rev(bad), Err(Error::UnknownRevision(_))),
+                "{bad:?}"
+            );
+        }
+    }
+
+    #[test]
+    fn a_version_is_rebuilt_and_its_changes_are_traced() {
+        let kit = kit_with_a_fix();
+        let reader = kit.store.read();
+        let cell = |rev: Rev| {
+            let v = version_at(&reader, "samples", rev).unwrap();
+            let (_, cells, _) = v.find_row(&reader, &RowId("S-2".into())).unwrap().unwrap();
+            cells[2].clone()
+        };
+        assert_eq!(
+            cell(resolve(&reader, "raw").unwrap()).as_deref(),
+            Some("71")
+        );
+        assert_eq!(
+            cell(resolve(&reader, "latest").unwrap()).as_deref(),
+            Some("7.1")
+        );
+        let d = diff(
+            &reader,
+            "samples",
+            resolve(&reader, "raw").unwrap(),
+            resolve(&reader, "latest").unwrap(),
+        )
+        .unwrap();
+        let changed: Vec<(&str, &str, Option<&str>, Option<&str>)> = d
+            .cells
+            .iter()
+            .map(|c| {
+                (
+                    c.row.as_str(),
+                    c.column.as_str(),
+                    c.old.as_deref(),
+                    c.new.as_deref(),
+                )
+            })
+            .collect();
+        assert_eq!(changed, vec![("S-2", "ph", Some("71"), Some("7.1"))]);
+        let story = why_cell(
+            &reader,
+            "samples",
+            &RowId("S-2".into()),
+            "ph",
+            resolve(&reader, "latest").unwrap(),
+        )
+        .unwrap();
+        assert_eq!(story.raw.as_deref(), Some("71"));
+        assert_eq!(story.events.len(), 1);
+        assert_eq!(story.events[0].seq, 2);
+        assert_eq!(
+            parse_row(&reader, "samples", "S-2").unwrap().as_str(),
+            "S-2"
+        );
+    }
+}
