@@ -13,7 +13,7 @@ pub const NOW: &str = "2026-10-01T09:00:00Z";
 /// A store with the table `samples` (key `sample_id`, three rows) ingested as commit 1.
 pub struct Kit {
     /// Keeps the folder alive.
-    pub dir: tempfile::TempDir,
+    pub _dir: tempfile::TempDir,
     /// The open store.
     pub store: Store,
 }
@@ -44,7 +44,7 @@ impl Kit {
         )
         .expect("write extract");
         let store = Store::init(dir.path(), NOW).expect("init");
-        let mut kit = Kit { dir, store };
+        let mut kit = Kit { _dir: dir, store };
         let opts = IngestOptions {
             table: "samples".into(),
             key: vec!["sample_id".into()],
