@@ -42,6 +42,11 @@ COMPATIBLE = {
     "constant": {"constant_column", "untrustworthy_column", "mostly_missing"},
     "contradiction": {"contradiction"},
     "date_order": {"date_format"},
+    "duplicate_rows": {"duplicate_row"},
+    "empty_rows": {"empty_row"},
+    "whitespace": {"whitespace", "spelling_variant", "case_variant"},
+    "case_variants": {"case_variant", "spelling_variant"},
+    "placeholder": {"placeholder", "missing_code", "untrustworthy_column"},
 }
 PROBLEM_KINDS = {k for ks in COMPATIBLE.values() for k in ks} | {
     "duplicate_row", "duplicate_key", "empty_row", "out_of_scope_row"}
@@ -109,6 +114,16 @@ def flagged(finding):
     elif variant == "contradiction":
         rows = list(d.get("rows", []))
         other = d.get("other")
+    elif variant == "dependency":
+        rows = list(d.get("rows", []))
+        values = list(d.get("found", [])) + [d.get("expected")]
+        other = d.get("determinant")
+    elif variant == "respellings":
+        values = [v["from"] for v in d.get("values", [])]
+    elif variant == "placeholders":
+        values = [v["value"] for v in d.get("values", [])]
+    elif variant == "rows":
+        rows = list(d.get("rows", [])) + list(d.get("originals", []))
     return values, [int(r) for r in rows], members, other
 
 
@@ -153,6 +168,8 @@ class Table:
 
 def label_columns(lab, finding_col, other):
     cols = lab.get("columns", [])
+    if not cols and not finding_col:
+        return True  # a whole-row label and a whole-row finding
     return finding_col in cols or (other is not None and other in cols)
 
 
@@ -209,6 +226,8 @@ def commands_of(sug):
     a = sug.get("action")
     if a == "recode":
         return [{"action": "recode", "column": sug["column"], "from": [f], "to": sug["to"]} for f in sug["from"]]
+    if a == "recode_each":
+        return [{"action": "recode", "column": sug["column"], "from": [f], "to": t} for f, t in sug["pairs"]]
     if a == "missing":
         return [{"action": "missing", "column": sug["column"], "codes": list(sug["codes"])}]
     if a == "distrust":

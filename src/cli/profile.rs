@@ -67,6 +67,17 @@ fn commands(table: &str, s: &FixSuggestion) -> Vec<String> {
                 .collect::<Vec<_>>()
                 .join(" ")
         )],
+        FixSuggestion::RecodeEach { column, pairs } => pairs
+            .iter()
+            .map(|(f, to)| {
+                format!(
+                    "emend recode {t} {} --from {} --to {} --why \"...\"",
+                    shell_quote(column),
+                    shell_quote(f),
+                    shell_quote(to)
+                )
+            })
+            .collect(),
         FixSuggestion::Distrust { column } => {
             vec![format!(
                 "emend distrust {t} {} --why \"...\"",
@@ -92,6 +103,16 @@ fn print_finding(o: &mut dyn Write, table: &str, f: &Finding, width: usize) -> R
         f.column,
         f.message
     )?;
+    if let Some(d) = &f.decided {
+        writeln!(
+            o,
+            "  {:6} {:width$}  {}",
+            "",
+            "",
+            paint(DIM, format!("decided in commit {}: {}", d.seq, d.how))
+        )?;
+        return Ok(());
+    }
     if let Some(s) = &f.suggestion {
         let cmds = commands(table, s);
         for c in cmds.iter().take(3) {
@@ -240,16 +261,25 @@ pub fn run(cx: &CliContext, a: ProfileArgs) -> Result<i32> {
         .unwrap_or(6)
         .min(24);
     writeln!(o)?;
-    if profile.findings.is_empty() {
-        writeln!(o, "no findings")?;
+    let (open, decided): (Vec<&Finding>, Vec<&Finding>) =
+        profile.findings.iter().partition(|f| f.decided.is_none());
+    if open.is_empty() {
+        writeln!(o, "no open findings")?;
     } else {
         writeln!(
             o,
             "{} ({}), worst first",
             paint(BOLD, "findings"),
-            profile.findings.len()
+            open.len()
         )?;
-        for f in &profile.findings {
+        for f in open {
+            print_finding(&mut o, &version.table, f, width)?;
+        }
+    }
+    if !decided.is_empty() {
+        writeln!(o)?;
+        writeln!(o, "{} ({})", paint(BOLD, "decided"), decided.len())?;
+        for f in decided {
             print_finding(&mut o, &version.table, f, width)?;
         }
     }

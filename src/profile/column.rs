@@ -14,9 +14,10 @@ use super::finding::{
     Finding, FindingDetail, FindingKind, FixSuggestion, MagnitudeFinding, MissingBasis, Severity,
     SuspectedMissing, WriteIn, sort_findings,
 };
-use super::levels::{LevelGroup, near_duplicate_groups};
+use super::levels::LevelGroup;
 use super::stats::{Moments, NumericSummary, summarize};
 use super::types::{CellKind, DateOrder, Family, InferredType, KindCounts, classify, infer_type};
+use super::variants::{Respelling, case_respellings, find_variants, respellings};
 
 /// How many row positions are kept per level, for listing write-ins.
 const ROWS_KEPT: usize = 3;
@@ -72,6 +73,8 @@ struct Level {
     count: u64,
     kind: CellKind,
     rows: [u64; ROWS_KEPT],
+    /// Order of first appearance, for cross-column counts.
+    id: u32,
 }
 
 /// Accumulates one column, cell by cell.
@@ -186,6 +189,15 @@ pub struct ColumnProfile {
     pub suspected_missing: Vec<SuspectedMissing>,
     /// Spellings of one value, grouped.
     pub near_duplicates: Vec<LevelGroup>,
+    /// Values with stray spacing or punctuation, and their clean form.
+    #[serde(default)]
+    pub spacing: Vec<Respelling>,
+    /// Values with one word capitalised against the column's usual form.
+    #[serde(default)]
+    pub case_variants: Vec<Respelling>,
+    /// Values that stand in for "unknown".
+    #[serde(default)]
+    pub placeholders: Vec<SuspectedMissing>,
     /// Reasons to distrust the column.
     pub flags: Vec<Flag>,
     /// This column's findings, worst first.
@@ -216,18 +228,37 @@ impl ColumnProfiler {
         self.push_cell(value);
     }
 
+    /// The column's name.
+    pub fn name(&self) -> &str {
+        &self.name
+    }
+
+    /// The value a level id stands for (ids come from [`ColumnProfiler::push_level`]).
+    pub(crate) fn level_names(&self) -> Vec<&str> {
+        let mut names = vec![""; self.levels.len()];
+        for (value, level) in &self.levels {
+            names[level.id as usize] = value;
+        }
+        names
+    }
+
     /// Adds a cell and tells whether it was present (neither blank nor declared missing).
     pub(crate) fn push_cell(&mut self, value: Option<&str>) -> bool {
+        self.push_level(value).is_some()
+    }
+
+    /// Adds a cell; for a present cell, its level id (`u32::MAX` past the level cap).
+    pub(crate) fn push_level(&mut self, value: Option<&str>) -> Option<u32> {
         self.cells += 1;
         let row = self.cells;
         let Some(text) = value else {
             self.declared_missing += 1;
-            return false;
+            return None;
         };
         let trimmed = text.trim();
         if trimmed.is_empty() {
             self.blank += 1;
-            return false;
+            return None;
         }
         if self
             .options
@@ -236,24 +267,28 @@ impl ColumnProfiler {
             .any(|c| c.trim() == trimmed)
         {
             self.declared_missing += 1;
-            return false;
+            return None;
         }
         self.present += 1;
+        let mut id = u32::MAX;
         let kind = if let Some(level) = self.levels.get_mut(text) {
             level.count += 1;
             if let Some(slot) = level.rows.get_mut((level.count - 1) as usize) {
                 *slot = row;
             }
+            id = level.id;
             level.kind
         } else {
             let kind = classify(text);
             if self.levels.len() < self.options.max_levels {
                 let mut rows = [0; ROWS_KEPT];
                 rows[0] = row;
+                id = self.levels.len() as u32;
                 let level = Level {
                     count: 1,
                     kind,
                     rows,
+                    id,
                 };
                 self.levels.insert(text.into(), level);
             } else {
@@ -266,7 +301,7 @@ impl ColumnProfiler {
             self.values.push(number.value);
             self.moments.push(number);
         }
-        true
+        Some(id)
     }
 
     /// Computes every figure and the column's findings.
@@ -391,45 +426,115 @@ impl ColumnProfiler {
                 }),
         );
 
+        // Every text level is compared (not only the most frequent): a singleton misspelling
+        // among thousands of levels is exactly what an analyst needs found.
         let text_levels: Vec<(&str, u64)> = sorted
             .iter()
             .filter(|(_, level)| matches!(level.kind, CellKind::Text | CellKind::Boolean))
-            .take(options.max_compared_levels)
             .map(|(value, level)| (*value, level.count))
             .collect();
-        let near_duplicates = near_duplicate_groups(&text_levels, options.jaro_winkler_threshold);
+        let near_duplicates = find_variants(&text_levels);
+        let grouped: std::collections::HashSet<&str> = near_duplicates
+            .iter()
+            .flat_map(|g| g.members.iter().map(|m| m.value.as_str()))
+            .collect();
+        let ungrouped: Vec<(&str, u64)> = text_levels
+            .iter()
+            .copied()
+            .filter(|(v, _)| !grouped.contains(v))
+            .collect();
+        let spacing = respellings(&ungrouped);
+        let respelt: std::collections::HashSet<&str> =
+            spacing.iter().map(|r| r.from.as_str()).collect();
+        let unspaced: Vec<(&str, u64)> = ungrouped
+            .iter()
+            .copied()
+            .filter(|(v, _)| !respelt.contains(v))
+            .collect();
+        let case_variants = case_respellings(&unspaced);
 
-        // In a coded (categorical) column, a level far rarer than the others is most likely a
-        // free-text write-in: at most 0.5% of present cells and at most a twentieth of the
-        // most frequent level. Spellings already grouped as near-duplicates are left to that
-        // finding. (Thresholds are our own choice, not from a published source.)
-        let (write_in_cells, write_ins) =
-            if inferred == InferredType::Categorical && present >= 100 && write_ins.is_empty() {
-                let top_count = sorted.first().map(|(_, l)| l.count).unwrap_or(0);
-                let grouped = |v: &str| {
-                    near_duplicates
+        // A common missing token that is the most frequent of several word levels is a
+        // category of the column ("None" meaning no damage), not a code for missing.
+        let top_value = sorted.first().map(|(v, _)| *v);
+        let word_levels = text_levels.len();
+        suspected_missing.retain(|s| {
+            !(s.basis == MissingBasis::CommonToken
+                && top_value == Some(s.value.as_str())
+                && word_levels >= 2)
+        });
+
+        // Placeholders: values that stand in for "unknown" without being a listed token.
+        let short_codes = !text_levels.is_empty()
+            && text_levels
+                .iter()
+                .all(|(v, _)| v.trim().chars().count() <= 3);
+        let placeholders: Vec<SuspectedMissing> = text_levels
+            .iter()
+            .filter(|(v, _)| is_placeholder(v, short_codes))
+            .map(|(v, count)| SuspectedMissing {
+                value: (*v).to_owned(),
+                count: *count,
+                basis: MissingBasis::CommonToken,
+            })
+            .collect();
+
+        // In a coded (categorical) column, a rare level written unlike the codes that fill the
+        // column is most likely from another scheme or a write-in: a one- or two-character
+        // code among words, a value at least twice as long as the longest usual code, or one
+        // with a comma, question mark, semicolon or slash that no usual code has. The usual codes are the levels that each hold at least 5% of
+        // present cells; a rare level holds at most 1%. (Our own rule, checked on the
+        // labelled corpus; a bare rare level is often a real, rare category.)
+        let (write_in_cells, write_ins) = if inferred == InferredType::Categorical
+            && present >= 100
+            && write_ins.is_empty()
+            && sorted
+                .first()
+                .is_some_and(|(_, top)| top.count * 100 < present * 99)
+        {
+            let usual: Vec<&str> = sorted
+                .iter()
+                .filter(|(_, level)| level.count * 20 >= present)
+                .map(|(v, _)| v.trim())
+                .collect();
+            let usual_cells: u64 = sorted
+                .iter()
+                .filter(|(_, level)| level.count * 20 >= present)
+                .map(|(_, level)| level.count)
+                .sum();
+            let len = |v: &str| v.chars().count();
+            let shortest = usual.iter().map(|v| len(v)).min().unwrap_or(0);
+            let longest = usual.iter().map(|v| len(v)).max().unwrap_or(0);
+            let unlike = |v: &str| {
+                let v = v.trim();
+                (len(v) <= 2 && shortest >= 4)
+                    || len(v) >= 2 * longest.max(3)
+                    || [',', '?', ';', '/']
                         .iter()
-                        .any(|g| g.members.iter().any(|m| m.value == v))
-                };
-                let rare: Vec<WriteIn> = sorted
+                        .any(|p| v.contains(*p) && !usual.iter().any(|u| u.contains(*p)))
+            };
+            let rare: Vec<WriteIn> = if usual_cells * 100 >= present * 90 {
+                sorted
                     .iter()
                     .filter(|(value, level)| {
-                        level.count * 200 <= present
-                            && level.count * 20 <= top_count
+                        level.count * 100 <= present
                             && level.kind != CellKind::MissingToken
-                            && !grouped(value)
+                            && !grouped.contains(*value)
+                            && unlike(value)
                     })
                     .map(|(value, level)| WriteIn {
                         value: (*value).to_owned(),
                         count: level.count,
                         rows: level.rows[..(level.count as usize).min(ROWS_KEPT)].to_vec(),
                     })
-                    .collect();
-                let n: u64 = rare.iter().map(|w| w.count).sum();
-                (n, rare.into_iter().take(options.max_listed).collect())
+                    .collect()
             } else {
-                (write_in_cells, write_ins)
+                Vec::new()
             };
+            let n: u64 = rare.iter().map(|w| w.count).sum();
+            (n, rare.into_iter().take(options.max_listed).collect())
+        } else {
+            (write_in_cells, write_ins)
+        };
 
         let mut flags = Vec::new();
         let missing_share = counts.missing() as f64 / cells.max(1) as f64;
@@ -453,7 +558,11 @@ impl ColumnProfiler {
 
         let magnitude: Vec<MagnitudeFinding> = numeric
             .iter()
-            .flat_map(|s| &s.magnitude_errors)
+            .flat_map(|s| {
+                s.magnitude_errors
+                    .iter()
+                    .filter(|e| s.isolated.iter().any(|o| o.value == e.value))
+            })
             .map(|e| MagnitudeFinding {
                 error: *e,
                 written: written(e.value),
@@ -472,12 +581,50 @@ impl ColumnProfiler {
             write_ins,
             suspected_missing,
             near_duplicates,
+            spacing,
+            case_variants,
+            placeholders,
             flags,
             findings: Vec::new(),
         };
         profile.findings = column_findings(&profile, dominant, &magnitude);
         profile
     }
+}
+
+/// Whether a value stands in for "unknown": it starts or ends with a word for unknown
+/// ("Unknown bird - small", "ENGINE UNKN"), or is a phrase such as "not recorded". A lone `U`
+/// counts only in a column of short codes. The phrases are common practice, from memory.
+fn is_placeholder(value: &str, short_codes: bool) -> bool {
+    const WORDS: [&str; 4] = ["unknown", "unkn", "unk", "unspecified"];
+    const PHRASES: [&str; 9] = [
+        "not recorded",
+        "not known",
+        "not stated",
+        "not available",
+        "not given",
+        "none given",
+        "no data",
+        "tbd",
+        "to be determined",
+    ];
+    let v = value.trim().to_lowercase();
+    if short_codes && v == "u" {
+        return true;
+    }
+    if PHRASES.contains(&v.as_str()) {
+        return true;
+    }
+    let words: Vec<&str> = v
+        .split(|c: char| !c.is_alphanumeric())
+        .filter(|w| !w.is_empty())
+        .collect();
+    if words.len() < 2 {
+        return false;
+    }
+    let first = words[0];
+    let last = words[words.len() - 1];
+    WORDS.contains(&first) || WORDS.contains(&last)
 }
 
 /// Formats a number the way it would be typed: shortest exact form, no exponent.
@@ -514,7 +661,7 @@ fn column_findings(
 ) -> Vec<Finding> {
     let column = || p.name.clone();
     let mut out = Vec::new();
-    let mut add = |kind, severity, message: String, detail, suggestion| {
+    let mut add = |kind, severity, message: String, detail, suggestion, evidence: String| {
         out.push(Finding {
             column: p.name.clone(),
             kind,
@@ -522,6 +669,8 @@ fn column_findings(
             message,
             detail,
             suggestion,
+            evidence,
+            decided: None,
         });
     };
 
@@ -544,7 +693,10 @@ fn column_findings(
                     missing: p.counts.missing(),
                     cells: p.counts.cells,
                 },
-                Some(FixSuggestion::Distrust { column: column() }),
+                // Only a column that is nearly empty is offered for distrust outright; at lower
+                // shares the present values may be exactly what is needed.
+                (*share >= 0.9).then(|| FixSuggestion::Distrust { column: column() }),
+                "a count, exact".to_owned(),
             ),
             Flag::Constant | Flag::NearConstant { .. } => {
                 let (value, share) = dominant.clone().expect("a constant flag has its value");
@@ -566,7 +718,8 @@ fn column_findings(
                     severity,
                     message,
                     FindingDetail::Dominant { value, share },
-                    Some(FixSuggestion::Distrust { column: column() }),
+                    None,
+                    "a count, exact; whether the column carries information is for the people who know how it was filled".to_owned(),
                 );
             }
             Flag::Contradicted { .. } => {}
@@ -609,16 +762,45 @@ fn column_findings(
                 column: column(),
                 codes,
             }),
+            match basis {
+                MissingBasis::Sentinel => "a listed sentinel (-9, -99, -999, -9999 and their positives; common practice) repeated and beyond Tukey's outer fence of the other values".to_owned(),
+                MissingBasis::CommonToken => "a common-practice missing token that is not the column's usual value".to_owned(),
+            },
+        );
+    }
+
+    if !p.placeholders.is_empty() {
+        let n: u64 = p.placeholders.iter().map(|v| v.count).sum();
+        let share = n as f64 / p.counts.present.max(1) as f64;
+        let values: Vec<&str> = p.placeholders.iter().map(|v| v.value.as_str()).collect();
+        let (severity, tail) = if share >= 0.5 {
+            (
+                Severity::Medium,
+                ": most of the column says nothing known, so it cannot be trusted for analysis by value",
+            )
+        } else {
+            (Severity::Low, "")
+        };
+        add(
+            FindingKind::Placeholder,
+            severity,
+            format!(
+                "{} stand for an unknown value ({}, {:.0}% of present cells){tail}",
+                quote_list(values.into_iter(), 5),
+                cells(n),
+                share * 100.0
+            ),
+            FindingDetail::Placeholders {
+                values: p.placeholders.clone(),
+                share,
+            },
+            None,
+            "the value begins or ends with a word for unknown, or is a phrase for not recorded; they may still carry information (a size class), so nothing is offered".to_owned(),
         );
     }
 
     for m in magnitude {
         let e = &m.error;
-        let suggestion = (!m.written.is_empty()).then(|| FixSuggestion::Recode {
-            column: column(),
-            from: m.written.clone(),
-            to: fmt_num(e.scaled),
-        });
         add(
             FindingKind::MagnitudeError,
             Severity::Medium,
@@ -630,7 +812,8 @@ fn column_findings(
                 cells(e.count)
             ),
             FindingDetail::Magnitude(m.clone()),
-            suggestion,
+            None,
+            "far out and cut off from the rest, and inside the fences when divided by a power of ten; check the source before changing it".to_owned(),
         );
     }
 
@@ -640,7 +823,7 @@ fn column_findings(
             InferredType::Decimal => "numbers",
             InferredType::Date => "dates",
             InferredType::Boolean => "booleans",
-            InferredType::Categorical => "one of the usual codes",
+            InferredType::Categorical => "written like the usual codes",
             _ => "the column type",
         };
         add(
@@ -657,60 +840,113 @@ fn column_findings(
                 values: p.write_ins.clone(),
             },
             None,
+            "cells that do not read as the type that fills the column".to_owned(),
         );
     }
 
     for group in &p.near_duplicates {
         let from: Vec<String> = group.variants().map(|m| m.value.clone()).collect();
+        let certain = group.basis.certain();
         add(
             FindingKind::NearDuplicateLevels,
-            Severity::Medium,
+            if certain {
+                Severity::Medium
+            } else {
+                Severity::Low
+            },
             format!(
-                "{} look like spellings of {:?}",
+                "{} and {:?} {}{}",
                 quote_list(from.iter().map(String::as_str), 5),
-                group.canonical
+                group.canonical,
+                group.basis.phrase(),
+                if certain {
+                    ""
+                } else {
+                    ": check before merging"
+                }
             ),
             FindingDetail::NearDuplicates(group.clone()),
-            Some(FixSuggestion::Recode {
+            certain.then(|| FixSuggestion::Recode {
                 column: column(),
                 from,
                 to: group.canonical.clone(),
             }),
+            if certain {
+                "the spellings are equal once case, accents, punctuation and spacing are set aside (or one is a rare copy with a lost space); the most frequent spelling is kept".to_owned()
+            } else {
+                "similar spellings, but not equal under the folding key; they may name different things".to_owned()
+            },
+        );
+    }
+
+    for (kind, list, what, why) in [
+        (
+            FindingKind::Whitespace,
+            &p.spacing,
+            "stray spacing or punctuation",
+            "the text is the same once spaces are collapsed, a lone final stop is dropped (the value without it is also present) and a hyphen is spaced on both sides",
+        ),
+        (
+            FindingKind::CaseVariants,
+            &p.case_variants,
+            "a word capitalised against the column's usual form",
+            "at least four in five of the values that use the word write it this way",
+        ),
+    ] {
+        if list.is_empty() {
+            continue;
+        }
+        let n: u64 = list.iter().map(|r| r.count).sum();
+        add(
+            kind,
+            Severity::Medium,
+            format!(
+                "{} with {what}: {}",
+                cells(n),
+                quote_list(list.iter().map(|r| r.from.as_str()), 5)
+            ),
+            FindingDetail::Respellings {
+                values: list.clone(),
+            },
+            Some(FixSuggestion::RecodeEach {
+                column: column(),
+                pairs: list
+                    .iter()
+                    .map(|r| (r.from.clone(), r.to.clone()))
+                    .collect(),
+            }),
+            why.to_owned(),
         );
     }
 
     if let Some(s) = &p.numeric {
         let sentinels: Vec<f64> = s.sentinels.iter().map(|v| v.value).collect();
+        let magnitudes: Vec<f64> = magnitude.iter().map(|m| m.error.value).collect();
         let values: Vec<_> = s
-            .outside
+            .isolated
             .iter()
-            .filter(|o| !sentinels.contains(&o.value))
+            .filter(|o| !sentinels.contains(&o.value) && !magnitudes.contains(&o.value))
             .copied()
             .collect();
-        let modified_z: Vec<_> = s
-            .modified_z_flagged
-            .iter()
-            .filter(|z| !sentinels.contains(&z.value))
-            .copied()
-            .collect();
-        if !values.is_empty() || !modified_z.is_empty() {
-            let extreme = values
+        if !values.is_empty() {
+            let modified_z: Vec<_> = s
+                .modified_z_flagged
                 .iter()
-                .any(|o| o.outside == super::stats::Outside::Extreme);
+                .filter(|z| values.iter().any(|o| o.value == z.value))
+                .copied()
+                .collect();
             let n_cells: u64 = values.iter().map(|o| o.count).sum();
             add(
                 FindingKind::Outliers,
-                if extreme {
-                    Severity::Medium
-                } else {
-                    Severity::Low
-                },
+                Severity::Medium,
                 format!(
-                    "{} beyond the Tukey fences [{}, {}], {} values with |modified z| > 3.5",
+                    "{} far out and cut off from the rest: {} ({} beyond the Tukey fences [{}, {}] in all, {} with |modified z| > 3.5)",
                     cells(n_cells),
+                    quote_list(values.iter().map(|o| fmt_num(o.value)).collect::<Vec<_>>().iter().map(String::as_str), 5),
+                    cells(s.beyond_inner),
                     fmt_num(s.fences.lower_inner),
                     fmt_num(s.fences.upper_inner),
-                    modified_z.len()
+                    cells(s.modified_z_cells)
                 ),
                 FindingDetail::Outliers {
                     fences: s.fences,
@@ -718,6 +954,7 @@ fn column_findings(
                     modified_z,
                 },
                 None,
+                "beyond Tukey's outer fence and separated from every other value by a gap wider than 3 IQR; a long real tail has no such gap".to_owned(),
             );
         }
     }
@@ -741,6 +978,7 @@ fn column_findings(
                     cells: p.kinds.date_slash,
                 },
                 None,
+                "slash dates counted by which readings name a real day".to_owned(),
             );
         }
     }
@@ -888,48 +1126,47 @@ mod tests {
     }
 
     #[test]
-    fn magnitude_error_suggests_recode() {
+    fn magnitude_error_is_named_but_not_fixed() {
         let p = of(&["61", "64.5", "70", "72", "6800", "75", "80", "66"]);
         let f = p
             .findings
             .iter()
             .find(|f| f.kind == FindingKind::MagnitudeError)
             .expect("a magnitude finding");
-        assert_eq!(
-            f.suggestion,
-            Some(FixSuggestion::Recode {
-                column: "col".into(),
-                from: vec!["6800".into()],
-                to: "68".into()
-            })
-        );
+        // A shifted decimal point is one reading; a keying slip is another. The source decides.
+        assert_eq!(f.suggestion, None);
         assert_eq!(f.message, "6800 may be 68 off by a factor of 100 (1 cell)");
     }
 
     #[test]
-    fn near_duplicates_suggest_the_common_spelling() {
-        let mut cells = vec!["Mill Creek"; 20];
-        cells.extend([
-            "mill craek",
-            "MILL CREEK",
-            "Oak Flat",
-            "Oak Flat",
-            "Oak Flat",
-        ]);
+    fn near_duplicates_suggest_the_common_spelling_only_when_certain() {
+        let mut cells = vec!["Mill Creek"; 200];
+        cells.extend(vec!["Oak Flat"; 60]);
+        cells.extend(vec!["Fox Run"; 50]);
+        cells.extend(["mill craek", "MILL CREEK", "MILL CREEK"]);
         let p = of(&cells);
         assert_eq!(p.inferred, InferredType::Categorical);
-        let f = p
+        let groups: Vec<&Finding> = p
             .findings
             .iter()
-            .find(|f| f.kind == FindingKind::NearDuplicateLevels)
-            .expect("a near-duplicate finding");
+            .filter(|f| f.kind == FindingKind::NearDuplicateLevels)
+            .collect();
+        assert_eq!(groups.len(), 2, "{groups:#?}");
+        // Case only: a ready recode.
         assert_eq!(
-            f.suggestion,
+            groups[0].suggestion,
             Some(FixSuggestion::Recode {
                 column: "col".into(),
-                from: vec!["MILL CREEK".into(), "mill craek".into()],
+                from: vec!["MILL CREEK".into()],
                 to: "Mill Creek".into()
             })
+        );
+        // A misspelt word: named for review, no command.
+        assert_eq!(groups[1].suggestion, None);
+        assert!(
+            groups[1].message.contains("mill craek"),
+            "{}",
+            groups[1].message
         );
     }
 

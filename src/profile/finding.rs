@@ -10,6 +10,7 @@ use serde::{Deserialize, Serialize};
 use super::levels::LevelGroup;
 use super::stats::{Fences, MagnitudeError, OutsideValue, ZScore};
 use super::types::{DateOrder, InferredType};
+use super::variants::Respelling;
 
 /// How much a finding matters; `High` sorts first.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
@@ -35,8 +36,19 @@ pub enum FindingKind {
     MagnitudeError,
     /// Cells that break the column's inferred type.
     WriteIns,
+    /// Exact copies of another row.
+    DuplicateRows,
+    /// Rows whose every measurement is blank or missing.
+    EmptyRows,
     /// One value spelled several ways.
     NearDuplicateLevels,
+    /// Values with stray spacing or punctuation: leading, trailing or doubled spaces, a lone
+    /// final full stop, a hyphen spaced on one side only.
+    Whitespace,
+    /// One word capitalised differently across levels.
+    CaseVariants,
+    /// Values that stand in for "unknown" without being a listed missing token.
+    Placeholder,
     /// More missing cells than the threshold allows.
     MostlyMissing,
     /// Values beyond the Tukey fences or with a large modified z-score.
@@ -147,6 +159,43 @@ pub enum FindingDetail {
     },
     /// A group of near-duplicate spellings.
     NearDuplicates(LevelGroup),
+    /// Values and the clean spelling of each.
+    Respellings {
+        /// One entry per value.
+        values: Vec<Respelling>,
+    },
+    /// Placeholder values and their share of present cells.
+    Placeholders {
+        /// The values, with counts.
+        values: Vec<SuspectedMissing>,
+        /// Their share of present cells, in [0, 1].
+        share: f64,
+    },
+    /// A value of one column that almost always goes with one value of another, and the
+    /// rows that break it.
+    Dependency {
+        /// The column conditioned on.
+        determinant: String,
+        /// Its value.
+        value: String,
+        /// The value the other column almost always holds then.
+        expected: String,
+        /// Rows with `value`.
+        support: u64,
+        /// The other values found instead.
+        found: Vec<String>,
+        /// The rows that break the pattern (1-based).
+        rows: Vec<u64>,
+    },
+    /// Rows, by 1-based position.
+    Rows {
+        /// How many rows in all.
+        count: u64,
+        /// The first rows (for duplicates: the copies, each with the row it repeats).
+        rows: Vec<u64>,
+        /// For duplicates: the earlier row each listed copy repeats.
+        originals: Vec<u64>,
+    },
     /// Missing cells.
     Missing {
         /// Blank or declared-missing cells.
@@ -199,6 +248,13 @@ pub enum FixSuggestion {
         /// The codes, as written.
         codes: Vec<String>,
     },
+    /// Replace each value with its own replacement (one `recode` per pair).
+    RecodeEach {
+        /// The column.
+        column: String,
+        /// (from, to) pairs.
+        pairs: Vec<(String, String)>,
+    },
     /// Mark the column as not to be trusted in analysis.
     Distrust {
         /// The column.
@@ -219,8 +275,23 @@ pub struct Finding {
     pub message: String,
     /// The figures behind it.
     pub detail: FindingDetail,
-    /// A fix to offer, when one follows from the data alone.
+    /// A fix to offer, only when the evidence makes it near-certain.
     pub suggestion: Option<FixSuggestion>,
+    /// How sure the finding is, and why, in words a statistician would accept.
+    #[serde(default)]
+    pub evidence: String,
+    /// Set when a recorded decision already answers the finding (a distrusted column).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub decided: Option<Decided>,
+}
+
+/// A decision that answers a finding.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Decided {
+    /// The commit that recorded it.
+    pub seq: u64,
+    /// What was decided, for people ("column distrusted").
+    pub how: String,
 }
 
 /// Orders findings worst first: by severity, then kind; otherwise keeps the given order
@@ -244,6 +315,8 @@ mod tests {
                 cells: 0,
             },
             suggestion: None,
+            evidence: String::new(),
+            decided: None,
         }
     }
 

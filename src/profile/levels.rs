@@ -1,10 +1,7 @@
-//! Near-duplicate levels: one value spelled several ways.
-//!
-//! Levels are first folded to a key (case, diacritics of Latin-1 and Latin Extended-A,
-//! punctuation, doubled or surrounding whitespace), then keys close in edit distance are
-//! joined. Distances count Unicode code points, as the reference values do. The caller keeps
-//! the work bounded by passing only the most frequent levels; this module does no I/O and
-//! never decides a fix on its own, it only suggests the most frequent spelling.
+//! The building blocks of level variants: the folding key (case, diacritics of Latin-1 and
+//! Latin Extended-A, punctuation, doubled or surrounding whitespace), string distances (from
+//! the `strsim` crate, counted in Unicode code points as the reference values are), and the
+//! group of spellings that [`super::variants`] forms.
 
 use serde::{Deserialize, Serialize};
 
@@ -137,6 +134,8 @@ pub struct LevelGroup {
     pub members: Vec<LevelCount>,
     /// Cells over all members.
     pub total: u64,
+    /// How the spellings differ.
+    pub basis: super::variants::VariantBasis,
 }
 
 impl LevelGroup {
@@ -144,118 +143,6 @@ impl LevelGroup {
     pub fn variants(&self) -> impl Iterator<Item = &LevelCount> {
         self.members.iter().filter(|m| m.value != self.canonical)
     }
-}
-
-/// Edits allowed between two spellings of one word or value of `len` code points: none
-/// under 4 (codes such as "A" and "B" are one edit apart), 1 up to 6, 2 above.
-pub fn allowed_edits(len: usize) -> usize {
-    match len {
-        0..=3 => 0,
-        4..=6 => 1,
-        _ => 2,
-    }
-}
-
-/// Whether two folded keys are close enough to be one value.
-///
-/// Keys with different digits never match ("Site 1" and "Site 2" are two sites). Otherwise
-/// the keys match when their Levenshtein distance is within [`allowed_edits`] of the shorter
-/// length, or when Jaro–Winkler ≥ `jw_threshold` with at least 8 code points and distance
-/// ≤ 3. When both keys have the same number of words (more than one), every pair of
-/// differing words must also be within [`allowed_edits`] of its own length, so that a
-/// whole short word cannot change ("Mill Creek North" and "Mill Creek South" stay apart).
-pub fn keys_match(a: &str, b: &str, jw_threshold: f64) -> bool {
-    if a == b {
-        return true;
-    }
-    let digits = |s: &str| s.chars().filter(char::is_ascii_digit).collect::<Vec<_>>();
-    if digits(a) != digits(b) {
-        return false;
-    }
-    let len = a.chars().count().min(b.chars().count());
-    let distance = levenshtein(a, b);
-    let close = distance <= allowed_edits(len)
-        || (len >= 8 && distance <= 3 && jaro_winkler(a, b) >= jw_threshold);
-    if !close {
-        return false;
-    }
-    let (wa, wb) = (a.split(' '), b.split(' '));
-    if a.split(' ').count() != b.split(' ').count() || a.split(' ').count() < 2 {
-        return true;
-    }
-    wa.zip(wb).all(|(x, y)| {
-        x == y || levenshtein(x, y) <= allowed_edits(x.chars().count().min(y.chars().count()))
-    })
-}
-
-/// Groups levels that are one value spelled differently.
-///
-/// `levels` should be the most frequent levels (a few hundred at most: the fuzzy pass
-/// compares keys pairwise). Levels with equal [`fold_key`] always group; then each key group,
-/// most frequent first, joins the first earlier group whose leading key it matches under
-/// [`keys_match`] (comparing with the leader only, so chains of small edits do not snowball).
-/// Only groups with two or more spellings are returned, largest first.
-///
-/// ```
-/// use emend::profile::levels::near_duplicate_groups;
-/// let groups = near_duplicate_groups(&[("Mill Creek", 40), ("mill craek", 2), ("Oak Flat", 9)], 0.92);
-/// assert_eq!(groups[0].canonical, "Mill Creek");
-/// assert_eq!(groups[0].total, 42);
-/// ```
-pub fn near_duplicate_groups(levels: &[(&str, u64)], jw_threshold: f64) -> Vec<LevelGroup> {
-    // Exact key groups, in first-seen order.
-    let mut keyed: Vec<(String, Vec<LevelCount>)> = Vec::new();
-    let mut index: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
-    for &(value, count) in levels {
-        let key = fold_key(value);
-        if key.is_empty() {
-            continue;
-        }
-        let member = LevelCount {
-            value: value.to_owned(),
-            count,
-        };
-        match index.get(&key) {
-            Some(&i) => keyed[i].1.push(member),
-            None => {
-                index.insert(key.clone(), keyed.len());
-                keyed.push((key, vec![member]));
-            }
-        }
-    }
-    let total = |members: &[LevelCount]| members.iter().map(|m| m.count).sum::<u64>();
-    keyed.sort_by(|a, b| total(&b.1).cmp(&total(&a.1)).then_with(|| a.0.cmp(&b.0)));
-
-    // Fuzzy pass: each key group joins the first leader it matches.
-    let mut clusters: Vec<(String, Vec<LevelCount>)> = Vec::new();
-    for (key, members) in keyed {
-        match clusters
-            .iter_mut()
-            .find(|(leader, _)| keys_match(leader, &key, jw_threshold))
-        {
-            Some((_, existing)) => existing.extend(members),
-            None => clusters.push((key, members)),
-        }
-    }
-
-    let mut groups: Vec<LevelGroup> = clusters
-        .into_iter()
-        .filter(|(_, members)| members.len() >= 2)
-        .map(|(_, mut members)| {
-            members.sort_by(|a, b| b.count.cmp(&a.count).then_with(|| a.value.cmp(&b.value)));
-            LevelGroup {
-                canonical: members[0].value.clone(),
-                total: total(&members),
-                members,
-            }
-        })
-        .collect();
-    groups.sort_by(|a, b| {
-        b.total
-            .cmp(&a.total)
-            .then_with(|| a.canonical.cmp(&b.canonical))
-    });
-    groups
 }
 
 #[cfg(test)]
@@ -353,73 +240,5 @@ mod tests {
         assert_eq!(jaro("abc", ""), 0.0);
         assert_eq!(jaro("abc", "xyz"), 0.0);
         assert_eq!(jaro_winkler("same", "same"), 1.0);
-    }
-
-    fn check_match(a: &str, b: &str, expected: bool) {
-        let (ka, kb) = (fold_key(a), fold_key(b));
-        assert_eq!(keys_match(&ka, &kb, 0.92), expected, "{a:?} / {b:?}");
-    }
-
-    #[test]
-    fn matching_rules() {
-        check_match("Mill Creek", "mill craek", true);
-        check_match("Mill Creek", "Mill Creeek", true);
-        check_match("Springfield", "Springfeild", true);
-        check_match("Shackleford", "Shackelford", true);
-        check_match("Site 1", "Site 2", false);
-        check_match("A", "B", false);
-        check_match("male", "female", false);
-        check_match("Mill Creek North", "Mill Creek South", false);
-        check_match("Oak Flat", "Elm Flat", false);
-        check_match("Yes", "YES ", true);
-    }
-
-    fn check_groups(levels: &[(&str, u64)], expected: &[(&str, &[&str])]) {
-        let groups = near_duplicate_groups(levels, 0.92);
-        let got: Vec<(&str, Vec<&str>)> = groups
-            .iter()
-            .map(|g| {
-                (
-                    g.canonical.as_str(),
-                    g.members.iter().map(|m| m.value.as_str()).collect(),
-                )
-            })
-            .collect();
-        let want: Vec<(&str, Vec<&str>)> = expected.iter().map(|(c, m)| (*c, m.to_vec())).collect();
-        assert_eq!(got, want, "{levels:?}");
-    }
-
-    #[test]
-    fn grouping() {
-        check_groups(
-            &[
-                ("Mill Creek", 120),
-                ("Oak Flat", 80),
-                ("mill creek", 7),
-                ("Mill  Creek ", 3),
-                ("mill craek", 1),
-                ("Oak flat", 2),
-                ("Pine Ridge", 50),
-            ],
-            &[
-                (
-                    "Mill Creek",
-                    &["Mill Creek", "mill creek", "Mill  Creek ", "mill craek"],
-                ),
-                ("Oak Flat", &["Oak Flat", "Oak flat"]),
-            ],
-        );
-        // Diacritics and punctuation.
-        check_groups(
-            &[("São Paulo", 10), ("Sao Paulo", 30), ("sao-paulo", 1)],
-            &[("Sao Paulo", &["Sao Paulo", "São Paulo", "sao-paulo"])],
-        );
-        // Distinct codes and numbered sites stay apart.
-        check_groups(&[("A", 5), ("B", 5), ("Site 1", 4), ("Site 2", 4)], &[]);
-        // A tie in counts picks the smaller string as canonical.
-        check_groups(
-            &[("north", 2), ("North", 2)],
-            &[("North", &["North", "north"])],
-        );
     }
 }

@@ -30,12 +30,14 @@
 //! ```
 
 pub mod column;
+pub mod dependencies;
 pub mod finding;
 pub mod levels;
 pub mod render;
 pub mod stats;
 pub mod table;
 pub mod types;
+pub mod variants;
 
 pub use column::{ColumnProfile, ColumnProfiler, Counts, Flag, LevelFreq, ProfileOptions};
 pub use finding::{

@@ -325,7 +325,9 @@ pub fn suspected_sentinels(sorted: &[f64], min_count: u64) -> Vec<ValueCount> {
         .into_iter()
         .filter(|c| {
             let x = c.value;
-            fences.classify(x) == Outside::Extreme
+            // With a degenerate spread (Q1 = Q3, as in a column that is nearly all 10) every
+            // other value is beyond the fences, so the fences say nothing there.
+            (q.iqr() > 0.0 && fences.classify(x) == Outside::Extreme)
                 || (x < 0.0 && q.min >= 0.0)
                 || (range > 0.0 && (x - q.max >= 0.5 * range || q.min - x >= 0.5 * range))
         })
@@ -433,6 +435,12 @@ pub struct NumericSummary {
     pub modified_z_flagged: Vec<ZScore>,
     /// Whether modified z-scores were defined (MAD > 0).
     pub modified_z_defined: bool,
+    /// Cells (not distinct values) with |M| > 3.5, counted in full.
+    #[serde(default)]
+    pub modified_z_cells: u64,
+    /// Distinct values far out and cut off from the rest (see [`isolated_values`]).
+    #[serde(default)]
+    pub isolated: Vec<OutsideValue>,
     /// Suspected sentinel codes (see [`suspected_sentinels`]).
     pub sentinels: Vec<ValueCount>,
     /// Suspected magnitude errors, suspected sentinels excluded.
@@ -488,6 +496,7 @@ pub fn summarize(
     } else {
         Vec::new()
     };
+    let modified_z_cells = modified_z_flagged.iter().map(|z| z.count).sum();
     modified_z_flagged.sort_by(|a, b| farthest_first(a.value, b.value));
     modified_z_flagged.truncate(max_listed);
 
@@ -509,9 +518,72 @@ pub fn summarize(
         mad,
         modified_z_flagged,
         modified_z_defined,
+        modified_z_cells,
+        isolated: isolated_values(&runs, &quartiles, &fences),
         sentinels,
         magnitude_errors,
     })
+}
+
+/// Values that are far out *and* cut off from the rest: beyond Tukey's outer fence (3 IQR past
+/// a quartile), separated from every less extreme value by a gap wider than 3 IQR, and few
+/// (at most 3 cells, or one in a thousand). A long real tail (incomes, costs, altitudes) has
+/// no such gap, so it is not reported; a keying slip (1048 where winds stay below 45) has one.
+/// The gap test follows the idea of Dixon's ratio test for a single outlier (Dixon 1950,
+/// *Annals of Mathematical Statistics* 21, 488–506: the gap to the nearest value against the
+/// spread), with the spread measured by the IQR so that it holds at any sample size; the
+/// multipliers are our own. Empty when the IQR is 0 (a degenerate spread has no scale).
+///
+/// ```
+/// use emend::profile::stats::{isolated_values, run_lengths, Fences, Quartiles};
+/// let mut v: Vec<f64> = (0..200).map(|i| 5.0 + f64::from(i % 30)).collect();
+/// v.push(1048.0);
+/// v.sort_by(f64::total_cmp);
+/// let q = Quartiles::from_sorted(&v).unwrap();
+/// let iso = isolated_values(&run_lengths(&v), &q, &Fences::tukey(&q));
+/// assert_eq!(iso.len(), 1);
+/// assert_eq!(iso[0].value, 1048.0);
+/// ```
+pub fn isolated_values(runs: &[ValueCount], q: &Quartiles, fences: &Fences) -> Vec<OutsideValue> {
+    let iqr = q.iqr();
+    if iqr <= 0.0 || runs.is_empty() {
+        return Vec::new();
+    }
+    let n: u64 = runs.iter().map(|r| r.count).sum();
+    let most = 3.max(n / 1000);
+    let gap = 3.0 * iqr;
+    let mut out = Vec::new();
+    // Upper side: walk up from the body; everything past the first wide gap is cut off.
+    let side = |ordered: &mut dyn Iterator<Item = &ValueCount>, beyond: &dyn Fn(f64) -> bool| {
+        let mut previous: Option<f64> = None;
+        let mut cut: Vec<OutsideValue> = Vec::new();
+        let mut after_gap = false;
+        for r in ordered {
+            if let Some(p) = previous
+                && beyond(r.value)
+                && (r.value - p).abs() > gap
+            {
+                after_gap = true;
+            }
+            if after_gap {
+                cut.push(OutsideValue {
+                    value: r.value,
+                    count: r.count,
+                    outside: Outside::Extreme,
+                });
+            }
+            previous = Some(r.value);
+        }
+        cut
+    };
+    let upper = side(&mut runs.iter(), &|x| x > fences.upper_outer);
+    let lower = side(&mut runs.iter().rev(), &|x| x < fences.lower_outer);
+    for part in [upper, lower] {
+        if !part.is_empty() && part.iter().map(|o| o.count).sum::<u64>() <= most {
+            out.extend(part);
+        }
+    }
+    out
 }
 
 #[cfg(test)]

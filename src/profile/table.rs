@@ -9,11 +9,12 @@
 //! filled). Columns past the limit are profiled alone. Cost per row is
 //! O(blank × filled) among tracked columns, at most 32 × 32 pair updates.
 
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, HashMap};
 
 use serde::{Deserialize, Serialize};
 
 use super::column::{ColumnProfile, ColumnProfiler, Flag, ProfileOptions};
+use super::dependencies::{MAX_COLUMNS, PairCounter};
 use super::finding::{
     Finding, FindingDetail, FindingKind, PairCounts, PairPattern, Severity, sort_findings,
 };
@@ -37,6 +38,11 @@ pub struct TableOptions {
     pub pair_min_support: u64,
     /// The most breaking rows, as a share of the rows following the pattern. Default 0.05.
     pub pair_exception_share: f64,
+    /// The table's key columns. Without a key, exact copies of a row are reported; with
+    /// one, rows are unique by construction. Key cells do not count as measurements when
+    /// looking for empty rows.
+    #[serde(default)]
+    pub key_columns: Vec<String>,
 }
 
 impl Default for TableOptions {
@@ -47,6 +53,7 @@ impl Default for TableOptions {
             max_pair_columns: MAX_PAIR_COLUMNS,
             pair_min_support: 10,
             pair_exception_share: 0.05,
+            key_columns: Vec::new(),
         }
     }
 }
@@ -80,7 +87,23 @@ pub struct TableProfiler {
     blank_filled: Vec<u64>,
     pair_rows: Vec<[u64; PAIR_ROWS_KEPT]>,
     options: TableOptions,
+    /// Per column: part of the key.
+    is_key: Vec<bool>,
+    /// Without a key: row hash → first row with it.
+    seen: Option<HashMap<u64, u64>>,
+    /// Copies found: (row, the row it repeats), the first few, and how many in all.
+    copies: Vec<(u64, u64)>,
+    n_copies: u64,
+    /// Rows with every measurement missing: the first few, and how many.
+    empty: Vec<u64>,
+    n_empty: u64,
+    /// Value pairs of the leading columns, for mined dependencies.
+    pairs: PairCounter,
+    ids: Vec<Option<u32>>,
 }
+
+/// Rows listed in a row-level finding.
+const ROWS_LISTED: usize = 20;
 
 impl TableProfiler {
     /// Starts a table with the given header.
@@ -100,6 +123,11 @@ impl TableProfiler {
             .len()
             .min(options.max_pair_columns)
             .min(MAX_PAIR_COLUMNS);
+        let is_key: Vec<bool> = header
+            .iter()
+            .map(|h| options.key_columns.iter().any(|k| k == h.as_ref()))
+            .collect();
+        let seen = options.key_columns.is_empty().then(HashMap::new);
         TableProfiler {
             columns,
             n_rows: 0,
@@ -107,6 +135,14 @@ impl TableProfiler {
             blank_filled: vec![0; tracked * tracked],
             pair_rows: vec![[0; PAIR_ROWS_KEPT]; tracked * tracked],
             options,
+            is_key,
+            seen,
+            copies: Vec::new(),
+            n_copies: 0,
+            empty: Vec::new(),
+            n_empty: 0,
+            pairs: PairCounter::new(header.len()),
+            ids: Vec::with_capacity(header.len()),
         }
     }
 
@@ -115,14 +151,20 @@ impl TableProfiler {
     /// refuses ragged rows, so neither should happen).
     pub fn push_row(&mut self, row: &[Option<&str>]) {
         self.n_rows += 1;
+        self.row_checks(row);
         let mut blank_mask = 0u64;
+        self.ids.clear();
         for (i, column) in self.columns.iter_mut().enumerate() {
             let cell = row.get(i).copied().unwrap_or(Some(""));
-            let filled = column.push_cell(cell);
-            if i < self.tracked && !filled {
+            let id = column.push_level(cell);
+            if i < self.tracked && id.is_none() {
                 blank_mask |= 1 << i;
             }
+            if i < MAX_COLUMNS {
+                self.ids.push(id);
+            }
         }
+        self.pairs.push(self.n_rows, &self.ids);
         if self.tracked == 0 || blank_mask == 0 {
             return;
         }
@@ -151,6 +193,47 @@ impl TableProfiler {
         }
     }
 
+    /// Exact copies (tables without a key) and rows with every measurement missing.
+    fn row_checks(&mut self, row: &[Option<&str>]) {
+        let n = self.columns.len();
+        let measured = (0..n).filter(|&i| !self.is_key[i]).count();
+        let empty = measured > 0
+            && (0..n).filter(|&i| !self.is_key[i]).all(|i| {
+                row.get(i)
+                    .copied()
+                    .flatten()
+                    .is_none_or(|c| c.trim().is_empty())
+            });
+        if empty {
+            self.n_empty += 1;
+            if self.empty.len() < ROWS_LISTED {
+                self.empty.push(self.n_rows);
+            }
+            return;
+        }
+        if let Some(seen) = &mut self.seen {
+            use std::hash::{BuildHasher, Hasher};
+            let mut h = std::hash::BuildHasherDefault::<std::collections::hash_map::DefaultHasher>::default().build_hasher();
+            for i in 0..n {
+                match row.get(i).copied().flatten() {
+                    Some(c) => {
+                        h.write_u8(1);
+                        h.write(c.as_bytes());
+                        h.write_u8(0xff);
+                    }
+                    None => h.write_u8(0),
+                }
+            }
+            let first = *seen.entry(h.finish()).or_insert(self.n_rows);
+            if first != self.n_rows {
+                self.n_copies += 1;
+                if self.copies.len() < ROWS_LISTED {
+                    self.copies.push((self.n_rows, first));
+                }
+            }
+        }
+    }
+
     /// Computes every column's profile and all findings.
     pub fn finish(self) -> TableProfile {
         let TableProfiler {
@@ -160,7 +243,19 @@ impl TableProfiler {
             blank_filled,
             pair_rows,
             options,
+            copies,
+            n_copies,
+            empty,
+            n_empty,
+            pairs: counter,
+            is_key,
+            ..
         } = self;
+        let dependencies = {
+            let names: Vec<Vec<&str>> = columns.iter().map(|c| c.level_names()).collect();
+            let column_names: Vec<String> = columns.iter().map(|c| c.name().to_owned()).collect();
+            counter.finish(&names, &column_names, &is_key)
+        };
         let mut columns: Vec<ColumnProfile> =
             columns.into_iter().map(ColumnProfiler::finish).collect();
         let mut findings: Vec<Finding> = columns
@@ -184,6 +279,57 @@ impl TableProfiler {
                 columns[b].flags.push(Flag::Contradicted { other: name_a });
                 findings.push(finding);
             }
+        }
+        findings.extend(dependencies);
+        let whole_rows =
+            |kind, message: String, rows: Vec<u64>, originals, evidence: &str| Finding {
+                column: String::new(),
+                kind,
+                severity: Severity::Medium,
+                message,
+                detail: FindingDetail::Rows {
+                    count: rows.len() as u64,
+                    rows,
+                    originals,
+                },
+                suggestion: None,
+                evidence: evidence.to_owned(),
+                decided: None,
+            };
+        if n_copies > 0 {
+            let listed: Vec<String> = copies
+                .iter()
+                .take(5)
+                .map(|(r, o)| format!("row {r} repeats row {o}"))
+                .collect();
+            let mut f = whole_rows(
+                FindingKind::DuplicateRows,
+                format!(
+                    "{n_copies} rows are exact copies of an earlier row ({}{})",
+                    listed.join(", "),
+                    if n_copies > 5 { ", ..." } else { "" }
+                ),
+                copies.iter().map(|c| c.0).collect(),
+                copies.iter().map(|c| c.1).collect(),
+                "every cell equal to an earlier row's (compared by a 64-bit hash of the whole row); the table has no key to tell them apart",
+            );
+            if let FindingDetail::Rows { count, .. } = &mut f.detail {
+                *count = n_copies;
+            }
+            findings.push(f);
+        }
+        if n_empty > 0 {
+            let mut f = whole_rows(
+                FindingKind::EmptyRows,
+                format!("{n_empty} rows have every measurement blank or missing"),
+                empty,
+                Vec::new(),
+                "every cell outside the key is blank or declared missing",
+            );
+            if let FindingDetail::Rows { count, .. } = &mut f.detail {
+                *count = n_empty;
+            }
+            findings.push(f);
         }
         sort_findings(&mut findings);
         TableProfile {
@@ -256,6 +402,12 @@ impl PairTable<'_> {
                     rows,
                 },
                 suggestion: None,
+                evidence: format!(
+                    "the pattern holds in {} of {} rows",
+                    both + neither,
+                    both + neither + paired_breaks
+                ),
+                decided: None,
             });
         }
         if only_a >= support
@@ -280,6 +432,12 @@ impl PairTable<'_> {
                     rows: Vec::new(),
                 },
                 suggestion: None,
+                evidence: format!(
+                    "the pattern holds in {} of {} rows",
+                    only_a + only_b,
+                    only_a + only_b + both
+                ),
+                decided: None,
             });
         }
         None
@@ -406,23 +564,69 @@ mod tests {
         let p = table(&["constant", "value"], &refs);
         let order: Vec<(FindingKind, Severity)> =
             p.findings.iter().map(|f| (f.kind, f.severity)).collect();
+        // Rows 7 and 9 repeat rows 5 and 2 exactly: the table has no key, so they are copies.
         assert_eq!(
             order,
             [
                 (FindingKind::SuspectedMissingCode, Severity::High),
+                (FindingKind::DuplicateRows, Severity::Medium),
                 (FindingKind::Constant, Severity::Medium),
             ]
         );
     }
 
     #[test]
+    fn copies_and_empty_rows_are_named_and_keys_are_not_measurements() {
+        let rows: &[&[&str]] = &[
+            &["A", "1", "x"],
+            &["B", "", ""],
+            &["A", "1", "x"],
+            &["C", "2", "y"],
+        ];
+        let keyless = table(&["id", "n", "s"], rows);
+        let copies: Vec<_> = keyless
+            .findings
+            .iter()
+            .filter(|f| f.kind == FindingKind::DuplicateRows)
+            .collect();
+        assert_eq!(copies.len(), 1);
+        assert!(matches!(
+            &copies[0].detail,
+            FindingDetail::Rows { count: 1, rows, originals } if rows == &[3] && originals == &[1]
+        ));
+        assert!(
+            !keyless
+                .findings
+                .iter()
+                .any(|f| f.kind == FindingKind::EmptyRows)
+        );
+        let options = TableOptions {
+            key_columns: vec!["id".into()],
+            ..TableOptions::default()
+        };
+        let mut t = TableProfiler::new(&["id", "n", "s"], options);
+        for r in [["A", "1", "x"], ["B", "", ""], ["C", "1", "x"]] {
+            t.push_row(&r.map(Some));
+        }
+        let keyed = t.finish();
+        let kinds: Vec<FindingKind> = keyed.findings.iter().map(|f| f.kind).collect();
+        assert!(kinds.contains(&FindingKind::EmptyRows), "{kinds:?}");
+        assert!(!kinds.contains(&FindingKind::DuplicateRows), "{kinds:?}");
+    }
+
+    #[test]
     fn profile_serializes() {
         let p = table(
             &["site", "n"],
-            &[&["Mill Creek", "3"], &["mill creek", "."]],
+            &[
+                &["Mill Creek", "3"],
+                &["Mill Creek", "4"],
+                &["mill creek", "5"],
+                &["mill creek", "."],
+            ],
         );
         let json = serde_json::to_value(&p).unwrap();
-        assert_eq!(json["n_rows"], 2);
+        assert_eq!(json["n_rows"], 4);
         assert_eq!(json["columns"][1]["inferred"], "integer");
         assert_eq!(json["columns"][1]["counts"]["blank"], 1);
         assert_eq!(json["findings"][0]["suggestion"]["action"], "recode");

@@ -182,9 +182,11 @@ fn columns(
             after: stats(a, va.as_deref()),
         });
     }
+    // Findings already answered by a decision are not open problems.
     let problems = pa
         .findings
         .iter()
+        .filter(|f| f.decided.is_none())
         .map(|f| ProblemView {
             column: f.column.clone(),
             severity: format!("{:?}", f.severity).to_lowercase(),

@@ -7,6 +7,7 @@
 
 use crate::error::Result;
 use crate::model::{Change, FixAction};
+use crate::profile::finding::Decided;
 use crate::profile::{FindingDetail, TableOptions, TableProfile, TableProfiler};
 use crate::query::{Version, decode};
 use crate::store::Reader;
@@ -59,6 +60,9 @@ pub fn profile_version(
             }
         }
     }
+    if options.key_columns.is_empty() {
+        options.key_columns = version.def.key.clone();
+    }
     let mut profiler = TableProfiler::new(version.header(), options);
     let mut positions: Vec<u64> = Vec::new();
     version.for_each_row(reader, |row| {
@@ -82,6 +86,10 @@ pub fn profile_version(
             .iter_mut()
             .for_each(|w| w.rows.iter_mut().for_each(map)),
         FindingDetail::Contradiction { rows, .. } => rows.iter_mut().for_each(map),
+        FindingDetail::Rows {
+            rows, originals, ..
+        } => rows.iter_mut().chain(originals.iter_mut()).for_each(map),
+        FindingDetail::Dependency { rows, .. } => rows.iter_mut().for_each(map),
         _ => {}
     };
     for c in &mut profile.columns {
@@ -96,5 +104,27 @@ pub fn profile_version(
         .findings
         .iter_mut()
         .for_each(|f| fix_detail(&mut f.detail));
+    // A distrusted column's findings are answered: show them as decided, with the commit.
+    if !version.raw {
+        let mut distrusted_in: BTreeMap<String, u64> = BTreeMap::new();
+        for m in reader.marks(&version.table, version.ingest_seq, version.seq)? {
+            if m.kind == "distrust" {
+                distrusted_in.entry(m.target).or_insert(m.seq);
+            }
+        }
+        let decide = |f: &mut crate::profile::Finding| {
+            if let Some(&seq) = distrusted_in.get(&f.column) {
+                f.decided = Some(Decided {
+                    seq,
+                    how: "column distrusted".to_owned(),
+                });
+                f.suggestion = None;
+            }
+        };
+        profile.findings.iter_mut().for_each(decide);
+        for c in &mut profile.columns {
+            c.findings.iter_mut().for_each(decide);
+        }
+    }
     Ok(profile)
 }
