@@ -8,7 +8,7 @@
 //! with an optional structured [`FixSuggestion`].
 //!
 //! Start reading at [`column`](mod@column). The other files are functions over data: [`types`] (one
-//! cell's kind, the column type), [`stats`] (numbers), [`levels`] (spellings), [`finding`]
+//! cell's kind, the column type), [`stats`] (numbers), [`levels`] and [`variants`] (spellings), [`dependencies`] (patterns between columns), [`finding`]
 //! (what is reported), [`table`] (rows and cross-column checks) and [`render`] (terminal
 //! pictures).
 //!
@@ -19,15 +19,18 @@
 //! ```
 //! use emend::profile::{FindingKind, TableOptions, TableProfiler};
 //! let mut t = TableProfiler::new(&["site", "depth_m"], TableOptions::default());
-//! for (site, depth) in [("Mill Creek", "1.2"), ("Mill Creek", "1.4"), ("mill craek", "1.1"),
-//!                       ("Mill Creek", "1.3"), ("Oak Flat", "130"), ("Oak Flat", "1.5")] {
-//!     t.push_row(&[Some(site), Some(depth)]);
+//! for i in 0..40 {
+//!     let depth = format!("1.{}", i % 5);
+//!     t.push_row(&[Some("Mill Creek"), Some(&depth)]);
+//!     t.push_row(&[Some("Oak Flat"), Some(&depth)]);
 //! }
+//! t.push_row(&[Some("MILL CREEK"), Some("1.2")]);
+//! t.push_row(&[Some("Oak Flat"), Some("130")]);
 //! let profile = t.finish();
 //! let kinds: Vec<FindingKind> = profile.findings.iter().map(|f| f.kind).collect();
 //! assert!(kinds.contains(&FindingKind::NearDuplicateLevels));
 //! assert!(kinds.contains(&FindingKind::MagnitudeError));
-//! ```
+//! //! ```
 
 pub mod column;
 pub mod dependencies;
