@@ -433,7 +433,13 @@ impl ColumnProfiler {
             .filter(|(_, level)| matches!(level.kind, CellKind::Text | CellKind::Boolean))
             .map(|(value, level)| (*value, level.count))
             .collect();
-        let near_duplicates = find_variants(&text_levels);
+        // A column of identifiers (nearly every value once) has no spellings to compare.
+        let identifiers = text_levels.len() as u64 * 2 > present;
+        let near_duplicates = if identifiers {
+            Vec::new()
+        } else {
+            find_variants(&text_levels)
+        };
         let grouped: std::collections::HashSet<&str> = near_duplicates
             .iter()
             .flat_map(|g| g.members.iter().map(|m| m.value.as_str()))
@@ -451,7 +457,11 @@ impl ColumnProfiler {
             .copied()
             .filter(|(v, _)| !respelt.contains(v))
             .collect();
-        let case_variants = case_respellings(&unspaced);
+        let case_variants = if identifiers && text_levels.len() > options.max_listed * 1000 {
+            Vec::new()
+        } else {
+            case_respellings(&unspaced)
+        };
 
         // A common missing token that is the most frequent of several word levels is a
         // category of the column ("None" meaning no damage), not a code for missing.

@@ -22,7 +22,7 @@ use super::finding::{Finding, FindingDetail, FindingKind, Severity};
 /// Columns whose pairs are counted.
 pub const MAX_COLUMNS: usize = 12;
 /// Rows counted.
-pub const MAX_ROWS: u64 = 200_000;
+pub const MAX_ROWS: u64 = 100_000;
 /// Distinct value pairs kept per column pair.
 pub const MAX_PAIR_CELLS: usize = 5_000;
 /// Rows a value must have before its pattern counts (support).

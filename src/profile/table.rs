@@ -9,7 +9,7 @@
 //! filled). Columns past the limit are profiled alone. Cost per row is
 //! O(blank × filled) among tracked columns, at most 32 × 32 pair updates.
 
-use std::collections::{BTreeMap, HashMap};
+use std::collections::BTreeMap;
 
 use serde::{Deserialize, Serialize};
 
@@ -89,11 +89,8 @@ pub struct TableProfiler {
     options: TableOptions,
     /// Per column: part of the key.
     is_key: Vec<bool>,
-    /// Without a key: row hash → first row with it.
-    seen: Option<HashMap<u64, u64>>,
-    /// Copies found: (row, the row it repeats), the first few, and how many in all.
-    copies: Vec<(u64, u64)>,
-    n_copies: u64,
+    /// Without a key: each row's 64-bit fingerprint, in row order (0 for an empty row).
+    seen: Option<Vec<u64>>,
     /// Rows with every measurement missing: the first few, and how many.
     empty: Vec<u64>,
     n_empty: u64,
@@ -127,7 +124,7 @@ impl TableProfiler {
             .iter()
             .map(|h| options.key_columns.iter().any(|k| k == h.as_ref()))
             .collect();
-        let seen = options.key_columns.is_empty().then(HashMap::new);
+        let seen = options.key_columns.is_empty().then(Vec::new);
         TableProfiler {
             columns,
             n_rows: 0,
@@ -137,8 +134,6 @@ impl TableProfiler {
             options,
             is_key,
             seen,
-            copies: Vec::new(),
-            n_copies: 0,
             empty: Vec::new(),
             n_empty: 0,
             pairs: PairCounter::new(header.len()),
@@ -161,7 +156,8 @@ impl TableProfiler {
                 blank_mask |= 1 << i;
             }
             if i < MAX_COLUMNS {
-                self.ids.push(id);
+                // Key values are unique: they take part in no pattern.
+                self.ids.push(if self.is_key[i] { None } else { id });
             }
         }
         self.pairs.push(self.n_rows, &self.ids);
@@ -209,28 +205,32 @@ impl TableProfiler {
             if self.empty.len() < ROWS_LISTED {
                 self.empty.push(self.n_rows);
             }
+            if let Some(seen) = &mut self.seen {
+                seen.push(0);
+            }
             return;
         }
         if let Some(seen) = &mut self.seen {
-            use std::hash::{BuildHasher, Hasher};
-            let mut h = std::hash::BuildHasherDefault::<std::collections::hash_map::DefaultHasher>::default().build_hasher();
+            // FNV-1a over the cells with a separator byte: a 64-bit fingerprint of the row.
+            // Two different rows share one with odds of about n²/2⁶⁵, so a reported copy is
+            // checked by value only in the sense that such a collision is vanishingly rare.
+            let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+            let mut eat = |b: u8| {
+                h ^= u64::from(b);
+                h = h.wrapping_mul(0x0000_0100_0000_01b3);
+            };
             for i in 0..n {
                 match row.get(i).copied().flatten() {
                     Some(c) => {
-                        h.write_u8(1);
-                        h.write(c.as_bytes());
-                        h.write_u8(0xff);
+                        eat(1);
+                        c.bytes().for_each(&mut eat);
+                        eat(0xff);
                     }
-                    None => h.write_u8(0),
+                    None => eat(0),
                 }
             }
-            let first = *seen.entry(h.finish()).or_insert(self.n_rows);
-            if first != self.n_rows {
-                self.n_copies += 1;
-                if self.copies.len() < ROWS_LISTED {
-                    self.copies.push((self.n_rows, first));
-                }
-            }
+            // 0 marks an empty row; a real row that hashes to 0 moves aside.
+            seen.push(h.max(1));
         }
     }
 
@@ -243,10 +243,9 @@ impl TableProfiler {
             blank_filled,
             pair_rows,
             options,
-            copies,
-            n_copies,
             empty,
             n_empty,
+            seen,
             pairs: counter,
             is_key,
             ..
@@ -281,6 +280,29 @@ impl TableProfiler {
             }
         }
         findings.extend(dependencies);
+        // Copies: sort row numbers by fingerprint; in each run of equal fingerprints the first
+        // row is the original and the others repeat it. Memory: 12 bytes per row.
+        let (copies, n_copies) = match seen {
+            Some(hashes) => {
+                let mut order: Vec<u32> = (0..hashes.len() as u32).collect();
+                order.sort_unstable_by_key(|&i| (hashes[i as usize], i));
+                let mut copies: Vec<(u64, u64)> = Vec::new();
+                let mut n = 0u64;
+                for w in order.chunk_by(|&a, &b| hashes[a as usize] == hashes[b as usize]) {
+                    if hashes[w[0] as usize] == 0 || w.len() < 2 {
+                        continue;
+                    }
+                    for &copy in &w[1..] {
+                        n += 1;
+                        copies.push((u64::from(copy) + 1, u64::from(w[0]) + 1));
+                    }
+                }
+                copies.sort_unstable();
+                copies.truncate(ROWS_LISTED);
+                (copies, n)
+            }
+            None => (Vec::new(), 0),
+        };
         let whole_rows =
             |kind, message: String, rows: Vec<u64>, originals, evidence: &str| Finding {
                 column: String::new(),

@@ -356,10 +356,48 @@ pub fn find_variants(levels: &[(&str, u64)]) -> Vec<LevelGroup> {
     out
 }
 
+/// A hyphen between words spaced on one side only ("Campbell -Corsicana") gets a space on
+/// both ("Campbell - Corsicana"); hyphens inside words ("Aberdeen-Amory") and signs of
+/// numbers ("-5") are left alone.
+fn space_hyphens(text: &str) -> String {
+    let chars: Vec<char> = text.chars().collect();
+    let mut out = String::with_capacity(text.len() + 2);
+    for (i, &c) in chars.iter().enumerate() {
+        if c == '-' {
+            let before = i.checked_sub(1).map(|j| chars[j]);
+            let after = chars.get(i + 1).copied();
+            let letter = |c: Option<char>| c.is_some_and(char::is_alphabetic);
+            let word_before = i >= 2 && letter(Some(chars[i - 2]));
+            let word_after = letter(chars.get(i + 2).copied());
+            if before == Some(' ') && letter(after) && word_before {
+                out.push_str("- ");
+                continue;
+            }
+            if after == Some(' ') && letter(before) && word_after {
+                out.push_str(" -");
+                continue;
+            }
+        }
+        out.push(c);
+    }
+    out
+}
+
 /// Cleans spacing and stray punctuation: surrounding whitespace, runs of whitespace inside,
 /// and one final full stop when the same text without it is also a level.
 fn cleaned(value: &str, has_level: &dyn Fn(&str) -> bool) -> String {
-    let collapsed = value.split_whitespace().collect::<Vec<_>>().join(" ");
+    let b = value.as_bytes();
+    let suspect = value.contains("  ")
+        || value.contains(" -")
+        || value.contains("- ")
+        || value.ends_with('.')
+        || b.first().is_some_and(u8::is_ascii_whitespace)
+        || b.last().is_some_and(u8::is_ascii_whitespace)
+        || value.contains(['\t', '\u{a0}']);
+    if !suspect {
+        return value.to_owned();
+    }
+    let collapsed = space_hyphens(&value.split_whitespace().collect::<Vec<_>>().join(" "));
     if let Some(stripped) = collapsed.strip_suffix('.')
         && !stripped.ends_with('.')
         && !stripped.is_empty()
@@ -585,6 +623,10 @@ mod tests {
             ("Inc.", 3),
             ("Abilene.", 1),
             ("Abilene", 9),
+            ("C Davis Campbell -Corsicana Muni", 1),
+            ("Aberdeen-Amory", 1),
+            ("Detroit Lakes- Wething", 1),
+            ("Temp -5", 1),
         ]);
         let pairs: Vec<(&str, &str)> = r.iter().map(|r| (r.from.as_str(), r.to.as_str())).collect();
         assert_eq!(
@@ -592,7 +634,12 @@ mod tests {
             [
                 (" Fox Run", "Fox Run"),
                 ("Fox  Run ", "Fox Run"),
-                ("Abilene.", "Abilene")
+                ("Abilene.", "Abilene"),
+                (
+                    "C Davis Campbell -Corsicana Muni",
+                    "C Davis Campbell - Corsicana Muni"
+                ),
+                ("Detroit Lakes- Wething", "Detroit Lakes - Wething"),
             ]
         );
     }

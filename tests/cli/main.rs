@@ -11,6 +11,7 @@ mod bad_input;
 mod carry;
 mod demo;
 mod faults;
+mod findings;
 mod hostile;
 mod identity;
 mod keys;
