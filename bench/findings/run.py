@@ -524,9 +524,11 @@ def main():
     ap.add_argument("--json", action="store_true", help="print one JSON document instead of markdown")
     ap.add_argument("--details", action="store_true", help="with markdown: list every finding and fix verdict")
     ap.add_argument("--keep", action="store_true", help="keep the scratch stores")
+    ap.add_argument("--corpus", default=str(CORPUS),
+                    help="folder of labelled tables (default bench/findings/corpus; bench/findings/demo scores the bundled demo)")
     a = ap.parse_args()
     binary = find_binary(a.emend)
-    folders = sorted(p for p in CORPUS.iterdir() if (p / "labels.toml").is_file())
+    folders = sorted(p for p in Path(a.corpus).iterdir() if (p / "labels.toml").is_file())
     if a.table:
         unknown = set(a.table) - {p.name for p in folders}
         if unknown:

@@ -38,9 +38,8 @@ pub struct TableOptions {
     pub pair_min_support: u64,
     /// The most breaking rows, as a share of the rows following the pattern. Default 0.05.
     pub pair_exception_share: f64,
-    /// The table's key columns. Without a key, exact copies of a row are reported; with
-    /// one, rows are unique by construction. Key cells do not count as measurements when
-    /// looking for empty rows.
+    /// The table's key columns. Key cells are left out when looking for copies (rows equal in
+    /// every other column, reported when rare) and for empty rows.
     #[serde(default)]
     pub key_columns: Vec<String>,
 }
@@ -124,7 +123,7 @@ impl TableProfiler {
             .iter()
             .map(|h| options.key_columns.iter().any(|k| k == h.as_ref()))
             .collect();
-        let seen = options.key_columns.is_empty().then(Vec::new);
+        let seen = Some(Vec::new());
         TableProfiler {
             columns,
             n_rows: 0,
@@ -219,7 +218,7 @@ impl TableProfiler {
                 h ^= u64::from(b);
                 h = h.wrapping_mul(0x0000_0100_0000_01b3);
             };
-            for i in 0..n {
+            for i in (0..n).filter(|&i| !self.is_key[i]) {
                 match row.get(i).copied().flatten() {
                     Some(c) => {
                         eat(1);
@@ -281,20 +280,26 @@ impl TableProfiler {
         }
         findings.extend(dependencies);
         // Copies: sort row numbers by fingerprint; in each run of equal fingerprints the first
-        // row is the original and the others repeat it. Memory: 12 bytes per row.
+        // row is the original and the others repeat it. Memory: 8 bytes a row while streaming, 16 while sorting.
         let (copies, n_copies) = match seen {
             Some(hashes) => {
-                let mut order: Vec<u32> = (0..hashes.len() as u32).collect();
-                order.sort_unstable_by_key(|&i| (hashes[i as usize], i));
+                // Sorting (fingerprint, row) pairs reads memory in order, which beats sorting
+                // row numbers by a looked-up fingerprint several times over on a million rows.
+                let mut order: Vec<(u64, u32)> = hashes
+                    .into_iter()
+                    .enumerate()
+                    .filter(|&(_, h)| h != 0)
+                    .map(|(i, h)| (h, i as u32))
+                    .collect();
+                order.sort_unstable();
                 let mut copies: Vec<(u64, u64)> = Vec::new();
                 let mut n = 0u64;
-                for w in order.chunk_by(|&a, &b| hashes[a as usize] == hashes[b as usize]) {
-                    if hashes[w[0] as usize] == 0 || w.len() < 2 {
-                        continue;
-                    }
-                    for &copy in &w[1..] {
+                for w in order.chunk_by(|a, b| a.0 == b.0) {
+                    for &(_, copy) in &w[1..] {
                         n += 1;
-                        copies.push((u64::from(copy) + 1, u64::from(w[0]) + 1));
+                        if copies.len() < ROWS_LISTED * 50 {
+                            copies.push((u64::from(copy) + 1, u64::from(w[0].1) + 1));
+                        }
                     }
                 }
                 copies.sort_unstable();
@@ -318,7 +323,12 @@ impl TableProfiler {
                 evidence: evidence.to_owned(),
                 decided: None,
             };
-        if n_copies > 0 {
+        // With a key, rows that repeat another in every other column are copies under a new
+        // key (one visit logged twice) only while they are rare: a register of aircraft has
+        // many rows with the same specification, which is no error.
+        let keyed = is_key.iter().any(|&k| k);
+        let copies_rare = !keyed || n_copies * 100 <= n_rows;
+        if n_copies > 0 && copies_rare {
             let listed: Vec<String> = copies
                 .iter()
                 .take(5)
@@ -327,7 +337,12 @@ impl TableProfiler {
             let mut f = whole_rows(
                 FindingKind::DuplicateRows,
                 format!(
-                    "{n_copies} rows are exact copies of an earlier row ({}{})",
+                    "{n_copies} rows are {} of an earlier row ({}{})",
+                    if keyed {
+                        "copies, in every column but the key,"
+                    } else {
+                        "exact copies"
+                    },
                     listed.join(", "),
                     if n_copies > 5 { ", ..." } else { "" }
                 ),
@@ -633,6 +648,8 @@ mod tests {
         let keyed = t.finish();
         let kinds: Vec<FindingKind> = keyed.findings.iter().map(|f| f.kind).collect();
         assert!(kinds.contains(&FindingKind::EmptyRows), "{kinds:?}");
+        // "C" repeats "A" but for the key; one copy in three rows is not rare, so it is not
+        // reported (a register of identical specifications looks like this).
         assert!(!kinds.contains(&FindingKind::DuplicateRows), "{kinds:?}");
     }
 
