@@ -46,18 +46,18 @@ fn fmt_num(x: f64) -> String {
 /// Command lines for a suggested fix, with a reason for the user to replace.
 fn commands(table: &str, s: &FixSuggestion) -> Vec<String> {
     let t = shell_quote(table);
+    let recode = |column: &str, from: &str, to: &str| {
+        format!(
+            "emend recode {t} {} --from {} --to {} --why \"...\"",
+            shell_quote(column),
+            shell_quote(from),
+            shell_quote(to)
+        )
+    };
     match s {
-        FixSuggestion::Recode { column, from, to } => from
-            .iter()
-            .map(|f| {
-                format!(
-                    "emend recode {t} {} --from {} --to {} --why \"...\"",
-                    shell_quote(column),
-                    shell_quote(f),
-                    shell_quote(to)
-                )
-            })
-            .collect(),
+        FixSuggestion::Recode { column, from, to } => {
+            from.iter().map(|f| recode(column, f, to)).collect()
+        }
         FixSuggestion::Missing { column, codes } => vec![format!(
             "emend missing {t} {} {} --why \"...\"",
             shell_quote(column),
@@ -67,17 +67,9 @@ fn commands(table: &str, s: &FixSuggestion) -> Vec<String> {
                 .collect::<Vec<_>>()
                 .join(" ")
         )],
-        FixSuggestion::RecodeEach { column, pairs } => pairs
-            .iter()
-            .map(|(f, to)| {
-                format!(
-                    "emend recode {t} {} --from {} --to {} --why \"...\"",
-                    shell_quote(column),
-                    shell_quote(f),
-                    shell_quote(to)
-                )
-            })
-            .collect(),
+        FixSuggestion::RecodeEach { column, pairs } => {
+            pairs.iter().map(|(f, to)| recode(column, f, to)).collect()
+        }
         FixSuggestion::Distrust { column } => {
             vec![format!(
                 "emend distrust {t} {} --why \"...\"",
