@@ -19,6 +19,9 @@ use super::stats::{Moments, NumericSummary, summarize};
 use super::types::{CellKind, DateOrder, Family, InferredType, KindCounts, classify, infer_type};
 use super::variants::{Respelling, case_respellings, find_variants, respellings};
 
+/// An identifier column with more levels than this is not searched for case variants.
+const MAX_CASE_COMPARED_IDENTIFIERS: usize = 20_000;
+
 /// How many row positions are kept per level, for listing write-ins.
 const ROWS_KEPT: usize = 3;
 
@@ -40,11 +43,6 @@ pub struct ProfileOptions {
     /// Text with at most this many distinct levels (and at least two cells per level on
     /// average) is categorical. Default 50.
     pub categorical_max_levels: u64,
-    /// How many of the most frequent text levels are compared for near-duplicates.
-    /// Default 300.
-    pub max_compared_levels: usize,
-    /// Jaro–Winkler similarity at which long spellings may group. Default 0.92.
-    pub jaro_winkler_threshold: f64,
     /// The most values listed in one finding or list. Default 20.
     pub max_listed: usize,
     /// How often a sentinel such as -999 must occur to be suspected. Default 2.
@@ -60,8 +58,6 @@ impl Default for ProfileOptions {
             near_constant_share: 0.99,
             mostly_missing_share: 0.5,
             categorical_max_levels: 50,
-            max_compared_levels: 300,
-            jaro_winkler_threshold: 0.92,
             max_listed: 20,
             sentinel_min_count: 2,
         }
@@ -457,7 +453,10 @@ impl ColumnProfiler {
             .copied()
             .filter(|(v, _)| !respelt.contains(v))
             .collect();
-        let case_variants = if identifiers && text_levels.len() > options.max_listed * 1000 {
+        // Word case is compared across the levels of a register of names too (airport names),
+        // but not across a column of many thousands of identifiers, where it costs a split of
+        // every level and finds nothing.
+        let case_variants = if identifiers && text_levels.len() > MAX_CASE_COMPARED_IDENTIFIERS {
             Vec::new()
         } else {
             case_respellings(&unspaced)
