@@ -46,6 +46,9 @@ COMPATIBLE = {
     "empty_rows": {"empty_row"},
     "whitespace": {"whitespace", "spelling_variant", "case_variant"},
     "case_variants": {"case_variant", "spelling_variant"},
+    "title_case": {"case_variant", "spelling_variant"},
+    "word_forms": {"spelling_variant", "inconsistent_code"},
+    "short_codes": {"inconsistent_code", "foreign_code", "spelling_variant", "placeholder"},
     "placeholder": {"placeholder", "missing_code", "untrustworthy_column"},
 }
 PROBLEM_KINDS = {k for ks in COMPATIBLE.values() for k in ks} | {
@@ -105,6 +108,9 @@ def flagged(finding):
         values = [m for m in members if m != d.get("canonical")] or members
     elif variant == "outliers":
         values = [v["value"] for v in d.get("values", [])] + [v["value"] for v in d.get("modified_z", [])]
+    elif variant == "magnitudes":
+        for m in d.get("values", []):
+            values.extend(m.get("written", []) or [m["error"].get("value")])
     elif variant == "magnitude":
         values = list(d.get("written", []))
         if not values and "error" in d:

@@ -5,12 +5,13 @@ use super::context::CliContext;
 use super::out::{self, BAD, BOLD, DIM, paint, shell_quote};
 use anyhow::Result;
 use clap::Args;
+use emend::profile::column::ValueRows;
 use emend::profile::{
     ColumnProfile, Finding, FixSuggestion, Flag, ProfileOptions, Severity, TableOptions,
     text_boxplot, text_histogram,
 };
 use emend::query;
-use emend::views::profiling::profile_version;
+use emend::views::profiling::{MAX_NAMED_ROWS, profile_version};
 use std::io::Write;
 
 #[derive(Args, Debug)]
@@ -95,6 +96,25 @@ fn print_finding(o: &mut dyn Write, table: &str, f: &Finding, width: usize) -> R
         f.column,
         f.message
     )?;
+    if !f.rows.is_empty() {
+        const SHOWN: usize = 6;
+        let names: Vec<String> = f.rows.iter().take(SHOWN).map(ToString::to_string).collect();
+        let more = if f.rows.len() > SHOWN {
+            format!(
+                " and {} more (--json lists up to {MAX_NAMED_ROWS})",
+                f.rows.len() - SHOWN
+            )
+        } else {
+            String::new()
+        };
+        writeln!(
+            o,
+            "  {:6} {:width$}  {}",
+            "",
+            "",
+            paint(DIM, format!("rows {}{more}", names.join(", ")))
+        )?;
+    }
     if let Some(d) = &f.decided {
         writeln!(
             o,
@@ -412,6 +432,31 @@ fn column_in_depth(
                 .map(|v| format!("{} ×{}", fmt_num(v.value), v.count))
                 .collect();
             writeln!(o, "  beyond the fences: {}", list.join(", "))?;
+        }
+        let with_rows: Vec<&ValueRows> = c
+            .outside_rows
+            .iter()
+            .filter(|v| !v.rows.is_empty())
+            .collect();
+        if !with_rows.is_empty() {
+            writeln!(o, "  rows beyond the fences (the first of each value):")?;
+            for v in with_rows.iter().take(20) {
+                let rows: Vec<String> = v.rows.iter().map(ToString::to_string).collect();
+                writeln!(
+                    o,
+                    "    {:>12} ×{:<5} {}",
+                    fmt_num(v.value),
+                    v.count,
+                    rows.join(", ")
+                )?;
+            }
+            if with_rows.len() > 20 {
+                writeln!(
+                    o,
+                    "    … and {} more values (--json lists them all)",
+                    with_rows.len() - 20
+                )?;
+            }
         }
         if n.modified_z_defined {
             if !n.modified_z_flagged.is_empty() {

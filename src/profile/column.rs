@@ -11,13 +11,16 @@ use std::collections::HashMap;
 use serde::{Deserialize, Serialize};
 
 use super::finding::{
-    Finding, FindingDetail, FindingKind, FixSuggestion, MagnitudeFinding, MissingBasis, Severity,
-    SuspectedMissing, WriteIn, sort_findings,
+    Finding, FindingDetail, FindingKind, FixSuggestion, MagnitudeFinding, MissingBasis, RowName,
+    Severity, SuspectedMissing, WriteIn, sort_findings,
 };
 use super::levels::LevelGroup;
 use super::stats::{Moments, NumericSummary, summarize};
 use super::types::{CellKind, DateOrder, Family, InferredType, KindCounts, classify, infer_type};
-use super::variants::{Respelling, case_respellings, find_variants, respellings};
+use super::variants::{
+    Respelling, abbreviation_respellings, case_respellings, codes_among_names, find_variants,
+    respellings, title_case_respellings,
+};
 
 /// An identifier column with more levels than this is not searched for case variants.
 const MAX_CASE_COMPARED_IDENTIFIERS: usize = 20_000;
@@ -159,6 +162,18 @@ pub enum Flag {
     },
 }
 
+/// A numeric value and the first rows holding it.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ValueRows {
+    /// The value.
+    pub value: f64,
+    /// How many cells hold it.
+    pub count: u64,
+    /// The first few rows holding it, over every spelling of the value (by 1-based position;
+    /// a stored version's profile adds the keys).
+    pub rows: Vec<RowName>,
+}
+
 /// Every figure of one column.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct ColumnProfile {
@@ -191,6 +206,19 @@ pub struct ColumnProfile {
     /// Values with one word capitalised against the column's usual form.
     #[serde(default)]
     pub case_variants: Vec<Respelling>,
+    /// Values title-cased by a program, with short function words in lower case.
+    #[serde(default)]
+    pub title_case: Vec<Respelling>,
+    /// Values using the rare one of two forms of a word (abbreviated or in full).
+    #[serde(default)]
+    pub word_forms: Vec<Respelling>,
+    /// Bare codes among written-out names, with rows.
+    #[serde(default)]
+    pub short_codes: Vec<WriteIn>,
+    /// Each value beyond the inner fences with the first rows holding it (rows are known
+    /// while the column's levels are tracked; past the level cap the list is empty).
+    #[serde(default)]
+    pub outside_rows: Vec<ValueRows>,
     /// Values that stand in for "unknown".
     #[serde(default)]
     pub placeholders: Vec<SuspectedMissing>,
@@ -461,6 +489,26 @@ impl ColumnProfiler {
         } else {
             case_respellings(&unspaced)
         };
+        let (title_case, word_forms) =
+            if identifiers && text_levels.len() > MAX_CASE_COMPARED_IDENTIFIERS {
+                (Vec::new(), Vec::new())
+            } else {
+                (
+                    title_case_respellings(&unspaced),
+                    abbreviation_respellings(&unspaced),
+                )
+            };
+        let short_codes: Vec<WriteIn> = codes_among_names(&text_levels)
+            .into_iter()
+            .map(|value| {
+                let level = &levels[value];
+                WriteIn {
+                    value: value.to_owned(),
+                    count: level.count,
+                    rows: level.rows[..(level.count as usize).min(ROWS_KEPT)].to_vec(),
+                }
+            })
+            .collect();
 
         // A common missing token that is the most frequent of several word levels is a
         // category of the column ("None" meaning no damage), not a code for missing.
@@ -473,13 +521,13 @@ impl ColumnProfiler {
         });
 
         // Placeholders: values that stand in for "unknown" without being a listed token.
-        let short_codes = !text_levels.is_empty()
+        let all_short = !text_levels.is_empty()
             && text_levels
                 .iter()
                 .all(|(v, _)| v.trim().chars().count() <= 3);
         let placeholders: Vec<SuspectedMissing> = text_levels
             .iter()
-            .filter(|(v, _)| is_placeholder(v, short_codes))
+            .filter(|(v, _)| is_placeholder(v, all_short))
             .map(|(v, count)| SuspectedMissing {
                 value: (*v).to_owned(),
                 count: *count,
@@ -578,6 +626,31 @@ impl ColumnProfiler {
             })
             .collect();
 
+        let outside_rows: Vec<ValueRows> = numeric
+            .iter()
+            .flat_map(|s| s.outside.iter())
+            .map(|o| {
+                let mut rows: Vec<u64> = sorted
+                    .iter()
+                    .filter(|(_, level)| level.kind.number().is_some_and(|n| n.value == o.value))
+                    .flat_map(|(_, level)| {
+                        level.rows[..(level.count as usize).min(ROWS_KEPT)]
+                            .iter()
+                            .copied()
+                    })
+                    .collect();
+                rows.sort_unstable();
+                ValueRows {
+                    value: o.value,
+                    count: o.count,
+                    rows: rows
+                        .into_iter()
+                        .map(|row| RowName { row, key: None })
+                        .collect(),
+                }
+            })
+            .collect();
+
         let mut profile = ColumnProfile {
             name,
             inferred,
@@ -592,6 +665,10 @@ impl ColumnProfiler {
             near_duplicates,
             spacing,
             case_variants,
+            title_case,
+            word_forms,
+            short_codes,
+            outside_rows,
             placeholders,
             flags,
             findings: Vec::new(),
@@ -679,6 +756,7 @@ fn column_findings(
             detail,
             suggestion,
             evidence,
+            rows: Vec::new(),
             decided: None,
         });
     };
@@ -808,19 +886,37 @@ fn column_findings(
         );
     }
 
-    for m in magnitude {
-        let e = &m.error;
+    if !magnitude.is_empty() {
+        // One finding per column, however many values: a column with a slipped decimal in
+        // many places is one problem to look into.
+        let n: u64 = magnitude.iter().map(|m| m.error.count).sum();
+        let mut listed: Vec<String> = magnitude
+            .iter()
+            .take(5)
+            .map(|m| {
+                let e = &m.error;
+                format!(
+                    "{} may be {} (×{})",
+                    fmt_num(e.value),
+                    fmt_num(e.scaled),
+                    e.factor
+                )
+            })
+            .collect();
+        if magnitude.len() > 5 {
+            listed.push(format!("and {} more values", magnitude.len() - 5));
+        }
         add(
             FindingKind::MagnitudeError,
             Severity::Medium,
             format!(
-                "{} may be {} off by a factor of {} ({})",
-                fmt_num(e.value),
-                fmt_num(e.scaled),
-                e.factor,
-                cells(e.count)
+                "{} may be off by a power of ten: {}",
+                cells(n),
+                listed.join(", ")
             ),
-            FindingDetail::Magnitude(m.clone()),
+            FindingDetail::Magnitudes {
+                values: magnitude.to_vec(),
+            },
             None,
             "far out and cut off from the rest, and inside the fences when divided by a power of ten; check the source before changing it".to_owned(),
         );
@@ -850,6 +946,60 @@ fn column_findings(
             },
             None,
             "cells that do not read as the type that fills the column".to_owned(),
+        );
+    }
+
+    if !p.short_codes.is_empty() {
+        let n: u64 = p.short_codes.iter().map(|w| w.count).sum();
+        add(
+            FindingKind::ShortCodes,
+            Severity::Medium,
+            format!(
+                "{} written as a bare code among written-out names: {}",
+                cells(n),
+                quote_list(p.short_codes.iter().map(|w| w.value.as_str()), 5)
+            ),
+            FindingDetail::WriteIns {
+                expected: p.inferred,
+                cells: n,
+                values: p.short_codes.clone(),
+            },
+            None,
+            "at least 20 levels are written-out names filling nine in ten cells, and these are a few bare codes (no lower-case letter, at most four characters); they may be another scheme's value for one of the names".to_owned(),
+        );
+    }
+
+    for (kind, list, what, why) in [
+        (
+            FindingKind::TitleCase,
+            &p.title_case,
+            "short function words capitalised, as a program title-cases",
+            "nearly every many-word value capitalises every word and none writes a short function word in lower case: the mark of text title-cased by a program; headline style lower-cases them, but an official name may differ (hyphens, other languages), so check before recoding",
+        ),
+        (
+            FindingKind::WordForms,
+            &p.word_forms,
+            "a word abbreviated where the column writes it in full, or the other way",
+            "at least four in five of the values that use the word write it the other way; \"St\" may also be \"Street\", so check before recoding",
+        ),
+    ] {
+        if list.is_empty() {
+            continue;
+        }
+        let n: u64 = list.iter().map(|r| r.count).sum();
+        add(
+            kind,
+            Severity::Low,
+            format!(
+                "{} with {what}: {}",
+                cells(n),
+                quote_list(list.iter().map(|r| r.from.as_str()), 5)
+            ),
+            FindingDetail::Respellings {
+                values: list.clone(),
+            },
+            None,
+            why.to_owned(),
         );
     }
 
@@ -1144,7 +1294,24 @@ mod tests {
             .expect("a magnitude finding");
         // A shifted decimal point is one reading; a keying slip is another. The source decides.
         assert_eq!(f.suggestion, None);
-        assert_eq!(f.message, "6800 may be 68 off by a factor of 100 (1 cell)");
+        assert_eq!(f.message, "1 cell may be off by a power of ten: 6800 may be 68 (×100)");
+    }
+
+    #[test]
+    fn magnitude_errors_of_one_column_are_one_finding() {
+        let mut cells = vec!["7.2", "7.4", "7.1", "7.3", "7.5", "7.0", "7.6", "7.2", "7.3", "7.4"];
+        cells.extend(["72", "740"]);
+        let p = of(&cells);
+        let found: Vec<&Finding> = p
+            .findings
+            .iter()
+            .filter(|f| f.kind == FindingKind::MagnitudeError)
+            .collect();
+        assert_eq!(found.len(), 1, "{:#?}", p.findings);
+        let FindingDetail::Magnitudes { values } = &found[0].detail else {
+            panic!("{:?}", found[0].detail)
+        };
+        assert_eq!(values.len(), 2);
     }
 
     #[test]

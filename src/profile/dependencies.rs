@@ -212,6 +212,7 @@ fn dependency(
                     "a conditional dependency (Fan et al. 2008): {:?} determines {:?} for most of its frequent values, and this value's pattern holds in at least 95% of at least {MIN_SUPPORT} rows",
                     columns[from], columns[to]
                 ),
+                rows: Vec::new(),
                 decided: None,
             }
         })

@@ -36,6 +36,8 @@ pub enum FindingKind {
     MagnitudeError,
     /// Cells that break the column's inferred type.
     WriteIns,
+    /// A few bare codes among written-out names.
+    ShortCodes,
     /// Exact copies of another row.
     DuplicateRows,
     /// Rows whose every measurement is blank or missing.
@@ -47,6 +49,10 @@ pub enum FindingKind {
     Whitespace,
     /// One word capitalised differently across levels.
     CaseVariants,
+    /// Short function words capitalised throughout, as a program title-cases.
+    TitleCase,
+    /// One word written both abbreviated and in full across levels.
+    WordForms,
     /// Values that stand in for "unknown" without being a listed missing token.
     Placeholder,
     /// More missing cells than the threshold allows.
@@ -146,8 +152,11 @@ pub enum FindingDetail {
         /// The values.
         values: Vec<SuspectedMissing>,
     },
-    /// A suspected magnitude error.
-    Magnitude(MagnitudeFinding),
+    /// Suspected magnitude errors of one column, one entry per value.
+    Magnitudes {
+        /// The values.
+        values: Vec<MagnitudeFinding>,
+    },
     /// Cells that break the inferred type.
     WriteIns {
         /// The type they break.
@@ -280,9 +289,34 @@ pub struct Finding {
     /// How sure the finding is, and why, in words a statistician would accept.
     #[serde(default)]
     pub evidence: String,
+    /// The rows it points at, by position and (for a keyed table) key, as far as they are
+    /// known: the first few of each value it names. Filled when a stored version is
+    /// profiled; empty for a finding about whole values of a column.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub rows: Vec<RowName>,
     /// Set when a recorded decision already answers the finding (a distrusted column).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub decided: Option<Decided>,
+}
+
+/// A row a finding points at.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct RowName {
+    /// 1-based position in the extract.
+    pub row: u64,
+    /// The row's key, for a keyed table.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub key: Option<String>,
+}
+
+impl std::fmt::Display for RowName {
+    /// The key with the position after it (`S-00412 (#412)`), or the position alone (`#412`).
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match &self.key {
+            Some(k) => write!(f, "{k} (#{})", self.row),
+            None => write!(f, "#{}", self.row),
+        }
+    }
 }
 
 /// A decision that answers a finding.
@@ -316,6 +350,7 @@ mod tests {
             },
             suggestion: None,
             evidence: String::new(),
+            rows: Vec::new(),
             decided: None,
         }
     }

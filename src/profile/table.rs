@@ -321,6 +321,7 @@ impl TableProfiler {
                 },
                 suggestion: None,
                 evidence: evidence.to_owned(),
+                rows: Vec::new(),
                 decided: None,
             };
         // With a key, rows that repeat another in every other column are copies under a new
@@ -444,6 +445,7 @@ impl PairTable<'_> {
                     both + neither,
                     both + neither + paired_breaks
                 ),
+                rows: Vec::new(),
                 decided: None,
             });
         }
@@ -474,6 +476,7 @@ impl PairTable<'_> {
                     only_a + only_b,
                     only_a + only_b + both
                 ),
+                rows: Vec::new(),
                 decided: None,
             });
         }

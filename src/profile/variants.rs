@@ -504,6 +504,195 @@ pub fn case_respellings(levels: &[(&str, u64)]) -> Vec<Respelling> {
         .collect()
 }
 
+/// Short function words that headline style writes in lower case inside a title: articles,
+/// coordinating conjunctions and prepositions (The Chicago Manual of Style, 17th ed., 8.159,
+/// from memory). "A" and "An" are left out: inside names a lone "A" is usually an initial.
+const MINOR_WORDS: &[&str] = &[
+    "of", "and", "the", "in", "on", "at", "by", "or", "for", "to", "upon", "nor", "but",
+];
+
+fn capitalised(word: &str) -> bool {
+    word.chars().next().is_some_and(char::is_uppercase)
+}
+
+/// Values title-cased by a program: where every word of at least 19 in 20 of the column's
+/// many-word levels (at least 20 of them) starts with a capital, and no level writes a short
+/// function word ("of", "and", "the", …) in lower case after its first word, each level that
+/// capitalises one there gets it in lower case, as headline style has it ("District Of
+/// Columbia" → "District of Columbia"). Names are not all English and an official form may
+/// be hyphenated ("Put-in-Bay"), so these are for review, not a ready command.
+///
+/// ```
+/// use emend::profile::variants::title_case_respellings;
+/// let mut levels: Vec<(String, u64)> =
+///     (0..20).map(|i| (format!("Green Valley {}", ["North", "Mills"][i % 2]) + &"x".repeat(i), 1)).collect();
+/// levels.push(("Isle Of Wight".into(), 3));
+/// let refs: Vec<(&str, u64)> = levels.iter().map(|(v, n)| (v.as_str(), *n)).collect();
+/// let r = title_case_respellings(&refs);
+/// assert_eq!((r[0].from.as_str(), r[0].to.as_str()), ("Isle Of Wight", "Isle of Wight"));
+/// ```
+pub fn title_case_respellings(levels: &[(&str, u64)]) -> Vec<Respelling> {
+    let mut many_word = 0u64;
+    let mut all_capitals = 0u64;
+    for (value, _) in levels {
+        let words: Vec<&str> = value.split_whitespace().collect();
+        if words.len() < 2 {
+            continue;
+        }
+        many_word += 1;
+        let mut lettered = words
+            .iter()
+            .filter(|w| w.chars().next().is_some_and(char::is_alphabetic));
+        if lettered.all(|w| capitalised(w)) {
+            all_capitals += 1;
+        }
+        // A function word in lower case anywhere after the first word: the column has a
+        // house style of its own, which `case_respellings` weighs instead.
+        if words[1..].iter().any(|w| MINOR_WORDS.contains(w)) {
+            return Vec::new();
+        }
+    }
+    if many_word < 20 || all_capitals * 20 < many_word * 19 {
+        return Vec::new();
+    }
+    levels
+        .iter()
+        .filter_map(|&(value, count)| {
+            let words: Vec<&str> = value.split(' ').collect();
+            let mut changed = false;
+            let to: Vec<String> = words
+                .iter()
+                .enumerate()
+                .map(|(i, w)| {
+                    let lower = w.to_lowercase();
+                    if i > 0 && capitalised(w) && MINOR_WORDS.contains(&lower.as_str()) {
+                        changed = true;
+                        lower
+                    } else {
+                        (*w).to_owned()
+                    }
+                })
+                .collect();
+            changed.then(|| Respelling {
+                from: value.to_owned(),
+                to: to.join(" "),
+                count,
+            })
+        })
+        .collect()
+}
+
+/// One word written both abbreviated and in full across the levels of a column ("St Thomas"
+/// among thirty names that write "Saint"): where one form holds at least four in five of the
+/// levels that use either (at least five levels), each level using the other form gets the
+/// usual one. The pairs are [`ABBREVIATIONS`]. For review: "St" is also "Street".
+///
+/// ```
+/// use emend::profile::variants::abbreviation_respellings;
+/// let levels = [("Saint Paul", 9), ("Saint Cloud", 2), ("Saint Joseph", 1), ("Saint Louis", 4),
+///               ("St Thomas", 1)];
+/// let r = abbreviation_respellings(&levels);
+/// assert_eq!((r[0].from.as_str(), r[0].to.as_str()), ("St Thomas", "Saint Thomas"));
+/// ```
+pub fn abbreviation_respellings(levels: &[(&str, u64)]) -> Vec<Respelling> {
+    let bare = |w: &str| w.trim_end_matches('.').to_lowercase();
+    let mut out = Vec::new();
+    for &(short, long) in ABBREVIATIONS {
+        // Levels using each form, and how the form is written (as "Ft." or "Ft").
+        let mut uses: [Vec<usize>; 2] = [Vec::new(), Vec::new()];
+        let mut written: [HashMap<&str, u64>; 2] = [HashMap::new(), HashMap::new()];
+        for (i, (value, _)) in levels.iter().enumerate() {
+            for side in 0..2 {
+                let form = [short, long][side];
+                let hits: Vec<&str> = value.split(' ').filter(|w| bare(w) == form).collect();
+                if !hits.is_empty() {
+                    uses[side].push(i);
+                    for w in hits {
+                        *written[side].entry(w).or_default() += 1;
+                    }
+                }
+            }
+        }
+        let (a, b) = (uses[0].len() as u64, uses[1].len() as u64);
+        let total = a + b;
+        if a == 0 || b == 0 || total < 5 {
+            continue;
+        }
+        let (usual, rare) = if a * 5 >= total * 4 {
+            (0, 1)
+        } else if b * 5 >= total * 4 {
+            (1, 0)
+        } else {
+            continue;
+        };
+        let usual_form = written[usual]
+            .iter()
+            .max_by(|x, y| x.1.cmp(y.1).then_with(|| y.0.cmp(x.0)))
+            .map(|(w, _)| *w)
+            .expect("a used form");
+        let rare_form = [short, long][rare];
+        for &i in &uses[rare] {
+            let (value, count) = levels[i];
+            let to: Vec<String> = value
+                .split(' ')
+                .map(|w| {
+                    if bare(w) != rare_form {
+                        w.to_owned()
+                    } else if w.chars().any(char::is_lowercase) {
+                        usual_form.to_owned()
+                    } else {
+                        usual_form.to_uppercase()
+                    }
+                })
+                .collect();
+            out.push(Respelling {
+                from: value.to_owned(),
+                to: to.join(" "),
+                count,
+            });
+        }
+    }
+    out
+}
+
+/// Short codes among written-out names: where at least 20 levels are words (they hold a lower-case
+/// letter) and fill at least nine in ten present cells, up to three levels written as a bare
+/// code (no lower-case letter, at most four characters, no space: "DC" among state names,
+/// "KBWD" among airport names) are another scheme's values. Our own rule, checked on the
+/// labelled corpus; the levels are returned most frequent first, as given.
+///
+/// ```
+/// use emend::profile::variants::codes_among_names;
+/// let names: Vec<String> = (0..25).map(|i| format!("Place{i}")).collect();
+/// let mut levels: Vec<(&str, u64)> = names.iter().map(|n| (n.as_str(), 10)).collect();
+/// levels.push(("DC", 12));
+/// assert_eq!(codes_among_names(&levels), ["DC"]);
+/// ```
+pub fn codes_among_names<'a>(levels: &[(&'a str, u64)]) -> Vec<&'a str> {
+    let is_word = |v: &str| v.chars().any(char::is_lowercase);
+    let is_code = |v: &str| {
+        !is_word(v)
+            && v.chars().count() <= 4
+            && !v.contains(char::is_whitespace)
+            && v.chars().any(char::is_uppercase)
+    };
+    let (mut word_levels, mut word_cells, mut all) = (0u64, 0u64, 0u64);
+    let mut codes = Vec::new();
+    for &(v, n) in levels {
+        all += n;
+        if is_word(v) {
+            word_levels += 1;
+            word_cells += n;
+        } else if is_code(v) {
+            codes.push(v);
+        }
+    }
+    if word_levels < 20 || word_cells * 10 < all * 9 || codes.is_empty() || codes.len() > 3 {
+        return Vec::new();
+    }
+    codes
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -677,5 +866,103 @@ mod tests {
         let r = case_respellings(&levels);
         let pairs: Vec<(&str, &str)> = r.iter().map(|r| (r.from.as_str(), r.to.as_str())).collect();
         assert_eq!(pairs, [("Firth Of Forth", "Firth of Forth")]);
+    }
+
+    #[test]
+    fn title_casing_is_found_only_where_every_word_is_capitalised() {
+        // Headline style (The Chicago Manual of Style 8.159, from memory) lower-cases "of",
+        // "and" and "the" inside a title: "Lake of the Woods", "King and Queen".
+        let base: Vec<String> = (0..24)
+            .map(|i| format!("Green Hollow {}", ["Mills", "Ford", "Bend"][i % 3]) + &"e".repeat(i))
+            .collect();
+        let mut levels: Vec<(&str, u64)> = base.iter().map(|v| (v.as_str(), 2)).collect();
+        levels.extend([
+            ("Lake Of The Woods", 1),
+            ("King And Queen", 4),
+            ("C A Moore", 1),
+            ("Of Mice", 1),
+        ]);
+        let r = title_case_respellings(&levels);
+        let pairs: Vec<(&str, &str)> = r.iter().map(|r| (r.from.as_str(), r.to.as_str())).collect();
+        // A lone "A" is an initial, and a first word is capitalised by position.
+        assert_eq!(
+            pairs,
+            [
+                ("Lake Of The Woods", "Lake of the Woods"),
+                ("King And Queen", "King and Queen")
+            ]
+        );
+
+        // One lower-case "of" anywhere: the column has a house style; no title-casing finding.
+        levels.push(("Isle of Man", 1));
+        assert!(title_case_respellings(&levels).is_empty());
+
+        // Too few many-word levels to call it a program's doing.
+        let few = [("Lake Of The Woods", 1), ("Green Bend", 1)];
+        assert!(title_case_respellings(&few).is_empty());
+    }
+
+    #[test]
+    fn abbreviations_need_a_clear_usual_form() {
+        // "Mt" in six levels against "Mount" in eight: no usual form, nothing respelt.
+        let even = [
+            ("Mt Carmel", 1),
+            ("Mt Olive", 1),
+            ("Mt Pleasant", 1),
+            ("Mt. Gilead", 1),
+            ("Mt Airy", 1),
+            ("Mt Hope", 1),
+            ("Mount Vernon", 1),
+            ("Mount Dora", 1),
+            ("Mount Ida", 1),
+            ("Mount Joy", 1),
+            ("Mount Union", 1),
+            ("Mount Hood", 1),
+            ("Mount Holly", 1),
+            ("Mount Morris", 1),
+        ];
+        assert!(abbreviation_respellings(&even).is_empty());
+        // The rare form follows the usual one's spelling, capitals kept.
+        let levels = [
+            ("FORT WORTH", 1),
+            ("Fort Myers", 1),
+            ("Fort Pierce", 1),
+            ("Fort Dodge", 1),
+            ("Fort Smith", 1),
+            ("Fort Collins", 1),
+            ("Fort Bragg", 1),
+            ("Fort Kent", 1),
+            ("FT. LEE", 1),
+            ("Ft. Wayne", 2),
+        ];
+        let r = abbreviation_respellings(&levels);
+        let pairs: Vec<(&str, &str)> = r.iter().map(|r| (r.from.as_str(), r.to.as_str())).collect();
+        assert_eq!(
+            pairs,
+            [("FT. LEE", "FORT LEE"), ("Ft. Wayne", "Fort Wayne")]
+        );
+    }
+
+    #[test]
+    fn bare_codes_only_among_many_names() {
+        let names: Vec<String> = (0..20).map(|i| format!("Riverside{i}")).collect();
+        let mut levels: Vec<(&str, u64)> = names.iter().map(|n| (n.as_str(), 5)).collect();
+        levels.push(("KBWD", 1));
+        assert_eq!(codes_among_names(&levels), ["KBWD"]);
+        // Four codes: the column mixes two schemes on purpose; not a few strays.
+        levels.extend([("TX", 1), ("OK", 1), ("NM", 1)]);
+        assert!(codes_among_names(&levels).is_empty());
+        // Nineteen names are too few to know the column writes names.
+        let few: Vec<(&str, u64)> = names
+            .iter()
+            .take(19)
+            .map(|n| (n.as_str(), 5))
+            .chain([("DC", 1)])
+            .collect();
+        assert!(codes_among_names(&few).is_empty());
+        // Codes that fill more than a tenth of the cells are a scheme of the column.
+        let mut heavy: Vec<(&str, u64)> = names.iter().map(|n| (n.as_str(), 5)).collect();
+        heavy.push(("DC", 20));
+        assert!(codes_among_names(&heavy).is_empty());
     }
 }

@@ -7,7 +7,9 @@
 
 use crate::error::Result;
 use crate::model::{Change, FixAction};
-use crate::profile::finding::Decided;
+use crate::profile::Finding;
+use crate::profile::column::ValueRows;
+use crate::profile::finding::{Decided, RowName};
 use crate::profile::{FindingDetail, TableOptions, TableProfile, TableProfiler};
 use crate::query::{Version, decode};
 use crate::store::Reader;
@@ -46,6 +48,73 @@ pub fn declared_codes(
     Ok(out)
 }
 
+/// The most rows named on one finding.
+pub const MAX_NAMED_ROWS: usize = 50;
+
+/// The rows a finding points at, in the profiler's numbering, first seen first, at most
+/// [`MAX_NAMED_ROWS`].
+fn finding_rows(f: &Finding, outside: &[ValueRows]) -> Vec<u64> {
+    let of_values = |values: &mut dyn Iterator<Item = f64>| -> Vec<u64> {
+        let wanted: Vec<f64> = values.collect();
+        outside
+            .iter()
+            .filter(|v| wanted.contains(&v.value))
+            .flat_map(|v| v.rows.iter().map(|r| r.row))
+            .collect()
+    };
+    let mut rows: Vec<u64> = match &f.detail {
+        FindingDetail::WriteIns { values, .. } => {
+            values.iter().flat_map(|w| w.rows.iter().copied()).collect()
+        }
+        FindingDetail::Contradiction { rows, .. } | FindingDetail::Dependency { rows, .. } => {
+            rows.clone()
+        }
+        FindingDetail::Rows { rows, .. } => rows.clone(),
+        FindingDetail::Outliers { values, .. } => of_values(&mut values.iter().map(|o| o.value)),
+        FindingDetail::Magnitudes { values } => {
+            of_values(&mut values.iter().map(|m| m.error.value))
+        }
+        _ => Vec::new(),
+    };
+    let mut seen = std::collections::HashSet::new();
+    rows.retain(|r| seen.insert(*r));
+    rows.truncate(MAX_NAMED_ROWS);
+    rows
+}
+
+/// Every row's key in one buffer (a few bytes a row), for naming a finding's rows; empty for
+/// a table without a key, whose rows are named by position.
+struct KeyNames {
+    keyed: bool,
+    text: String,
+    ends: Vec<usize>,
+}
+
+impl KeyNames {
+    fn new(keyed: bool) -> KeyNames {
+        KeyNames {
+            keyed,
+            text: String::new(),
+            ends: Vec::new(),
+        }
+    }
+
+    fn push(&mut self, key: &str) {
+        if self.keyed {
+            self.text.push_str(key);
+            self.ends.push(self.text.len());
+        }
+    }
+
+    /// The key of the `n`th row given (1-based).
+    fn get(&self, n: u64) -> Option<String> {
+        let i = (n as usize).checked_sub(1)?;
+        let end = *self.ends.get(i)?;
+        let start = if i == 0 { 0 } else { self.ends[i - 1] };
+        Some(crate::model::RowId(self.text[start..end].to_owned()).to_string())
+    }
+}
+
 /// Profile every column of a version in one streaming pass.
 pub fn profile_version(
     reader: &Reader<'_>,
@@ -65,16 +134,42 @@ pub fn profile_version(
     }
     let mut profiler = TableProfiler::new(version.header(), options);
     let mut positions: Vec<u64> = Vec::new();
+    let mut keys = KeyNames::new(!version.def.key.is_empty());
     version.for_each_row(reader, |row| {
         if row.excluded {
             return Ok(ControlFlow::Continue(()));
         }
         positions.push(row.pos);
+        keys.push(row.id.as_str());
         let cells: Vec<Option<&str>> = row.cells.iter().map(|c| c.as_deref()).collect();
         profiler.push_row(&cells);
         Ok(ControlFlow::Continue(()))
     })?;
     let mut profile = profiler.finish();
+    // Name each finding's rows by key and position, before the numbers below turn into
+    // positions (the profiler numbers the rows it was given, 1 for the first).
+    let name = |n: u64| RowName {
+        row: positions
+            .get((n as usize).wrapping_sub(1))
+            .copied()
+            .unwrap_or(n),
+        key: keys.get(n),
+    };
+    let outside: BTreeMap<String, Vec<ValueRows>> = profile
+        .columns
+        .iter()
+        .map(|c| (c.name.clone(), c.outside_rows.clone()))
+        .collect();
+    let named = |f: &mut Finding| {
+        f.rows = finding_rows(f, outside.get(&f.column).map_or(&[][..], Vec::as_slice))
+            .into_iter()
+            .map(name)
+            .collect();
+    };
+    profile.findings.iter_mut().for_each(named);
+    for c in &mut profile.columns {
+        c.findings.iter_mut().for_each(named);
+    }
     // The profiler numbers the rows it was given; name them by their extract position.
     let map = |n: &mut u64| {
         if let Some(p) = positions.get((*n as usize).wrapping_sub(1)) {
@@ -95,7 +190,13 @@ pub fn profile_version(
     for c in &mut profile.columns {
         c.write_ins
             .iter_mut()
+            .chain(c.short_codes.iter_mut())
             .for_each(|w| w.rows.iter_mut().for_each(map));
+        for v in &mut c.outside_rows {
+            for r in &mut v.rows {
+                *r = name(r.row);
+            }
+        }
         c.findings
             .iter_mut()
             .for_each(|f| fix_detail(&mut f.detail));

@@ -56,6 +56,13 @@ fn wildlife_strikes_findings_match_their_labels() {
             .unwrap()
             .contains("\"C\", \"B\"")
     );
+    // bird-07: "DC", the one abbreviation among full state names, for review.
+    let codes = of(&f, "Origin State", "short_codes");
+    assert_eq!(
+        codes[0]["detail"]["write_ins"]["values"][0]["value"], "DC",
+        "{f:#}"
+    );
+    assert!(codes[0]["suggestion"].is_null());
     // bird-05: exact duplicate rows of a table without a key, named by row.
     let dups = of(&f, "", "duplicate_rows");
     assert_eq!(dups[0]["detail"]["rows"]["count"], 24, "{f:#}");
@@ -115,4 +122,36 @@ fn aircraft_register_findings_match_their_labels() {
     assert_eq!(model[0]["suggestion"]["from"][0], "FALCON-XP", "{f:#}");
     // planes-t01: model codes that differ by one character (172E / 172M / 172N) stay apart.
     assert_eq!(model.len(), 1, "{f:#}");
+}
+
+#[test]
+fn zip_code_register_findings_match_their_labels() {
+    // ZIP code gazetteer slice, vega-datasets 3.2.1 (U.S. Government data); labels in
+    // bench/findings/corpus/zipcodes/labels.toml.
+    let f = profile("zipcodes", None);
+    // zip-01: county names title-cased by a program ("District Of Columbia"), for review only.
+    let title = of(&f, "county", "title_case");
+    assert_eq!(title.len(), 1, "{f:#}");
+    let values = &title[0]["detail"]["respellings"]["values"];
+    assert!(
+        values
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|v| v["from"] == "District Of Columbia" && v["to"] == "District of Columbia"),
+        "{values}"
+    );
+    assert!(title[0]["suggestion"].is_null());
+    // zip-02: "St Thomas" where the column writes "Saint".
+    let forms = of(&f, "city", "word_forms");
+    assert!(
+        forms[0]["detail"]["respellings"]["values"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|v| v["from"] == "St Thomas" && v["to"] == "Saint Thomas"),
+        "{f:#}"
+    );
+    // zip-t03: ZIP codes with leading zeros are identifiers, never outliers.
+    assert!(of(&f, "zip_code", "outliers").is_empty(), "{f:#}");
 }
