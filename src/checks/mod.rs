@@ -13,12 +13,14 @@
 //! Dirty data is a result, never an error; this module does no I/O.
 
 mod checker;
+mod condition;
 mod error;
 mod outcome;
 mod rules;
 mod value;
 
 pub use checker::{Checker, TRACKED_VALUES};
+pub use condition::{Condition, ConditionError, parse_condition};
 pub use error::RuleError;
 pub use outcome::{
     CheckReport, ColumnFlag, FlagKind, MAX_EXAMPLES, RuleOutcome, Severity, Violation,

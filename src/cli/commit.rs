@@ -149,10 +149,28 @@ pub fn carry(cx: &CliContext, a: CarryArgs) -> Result<i32> {
     Ok(0)
 }
 
-pub fn discard(cx: &CliContext) -> Result<i32> {
+#[derive(clap::Args, Debug)]
+pub struct DiscardArgs {
+    /// The pending fix to drop, numbered as 'emend status' lists them (leave out to drop all)
+    number: Option<usize>,
+}
+
+pub fn discard(cx: &CliContext, a: DiscardArgs) -> Result<i32> {
     let mut store = cx.store()?;
-    let n = ledger::discard(&mut store)?;
-    writeln!(out::stdout(), "dropped {n} pending fixes")?;
+    match a.number {
+        Some(n) => {
+            let fix = ledger::discard_one(&mut store, n)?;
+            writeln!(
+                out::stdout(),
+                "dropped pending fix {n}: {}",
+                fix.action.describe()
+            )?;
+        }
+        None => {
+            let n = ledger::discard(&mut store)?;
+            writeln!(out::stdout(), "dropped {n} pending fixes")?;
+        }
+    }
     Ok(0)
 }
 

@@ -67,6 +67,7 @@ fn fix(store: &mut Store, now: &str, step: Step<'_>) -> Result<()> {
             why: step.why.into(),
             evidence: step.evidence,
             consulted: step.consulted.map(String::from),
+            allow_empty: false,
         },
         now,
     )?;

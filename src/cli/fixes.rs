@@ -2,10 +2,12 @@
 //! its reason; nothing changes in history until `emend commit`.
 
 use super::context::CliContext;
+use super::edits::{self, RowChoice};
 use super::out::{self, BOLD, DIM, GOOD, paint};
 use anyhow::{Context, Result, bail};
 use clap::Args;
 use emend::ledger::{self, FixRequest};
+use emend::model::edit::{Rows, Transform};
 use emend::model::{Fix, FixAction};
 use emend::query;
 use std::io::Write;
@@ -26,19 +28,38 @@ pub struct FixMeta {
 }
 
 #[derive(Args, Debug)]
+#[command(
+    after_help = "Forms:\n  emend set TABLE ROW COLUMN VALUE --why ...          one cell\n  emend set TABLE ROW COLUMN --missing --why ...      one cell to missing\n  emend set TABLE COLUMN VALUE --rows K1,K2 --why ...  chosen rows\n  emend set TABLE COLUMN --negate --where 'lon gt 0' --why ...\n  emend set TABLE COLUMN --scale -1 --rows #412 --why ..."
+)]
 pub struct SetArgs {
     /// Table
     table: String,
-    /// Row: its key value (composite keys: values joined by commas), or its 1-based position
-    /// when the table has no key
-    row: String,
-    /// Column
-    column: String,
-    /// The new value (leave out with --missing)
-    value: Option<String>,
-    /// Set the cell to missing instead of a value
-    #[arg(long, conflicts_with = "value")]
+    /// ROW COLUMN [VALUE] for one cell; COLUMN [VALUE] with --rows or --where. A row is its
+    /// key (composite keys: values joined by commas) or #N for the row at position N
+    #[arg(num_args = 1..=3, value_name = "ROW COLUMN VALUE", required = true)]
+    args: Vec<String>,
+    /// Set the cells to missing instead of a value
+    #[arg(long, conflicts_with_all = ["negate", "scale", "round"])]
     missing: bool,
+    /// Turn the sign of each number
+    #[arg(long, conflicts_with_all = ["scale", "round"])]
+    negate: bool,
+    /// Multiply each number by ten to this power (-1 moves the decimal point one place left)
+    #[arg(
+        long,
+        value_name = "POWER",
+        allow_negative_numbers = true,
+        conflicts_with = "round"
+    )]
+    scale: Option<i32>,
+    /// Round each number to this many decimal places (half away from zero)
+    #[arg(long, value_name = "PLACES")]
+    round: Option<u32>,
+    #[command(flatten)]
+    choice: RowChoice,
+    /// Record the fix even if it changes no cell now
+    #[arg(long)]
+    allow_empty: bool,
     #[command(flatten)]
     meta: FixMeta,
 }
@@ -58,6 +79,9 @@ pub struct RecodeArgs {
     /// A two-column CSV file of from,to pairs (a first line 'from,to' is skipped)
     #[arg(long, value_name = "FILE")]
     map: Option<PathBuf>,
+    /// Record the fix even if it changes no cell now
+    #[arg(long)]
+    allow_empty: bool,
     #[command(flatten)]
     meta: FixMeta,
 }
@@ -79,6 +103,9 @@ pub struct MissingArgs {
         allow_negative_numbers = true
     )]
     codes: Vec<String>,
+    /// Record the fix even if it changes no cell now
+    #[arg(long)]
+    allow_empty: bool,
     #[command(flatten)]
     meta: FixMeta,
 }
@@ -87,8 +114,25 @@ pub struct MissingArgs {
 pub struct ExcludeArgs {
     /// Table
     table: String,
-    /// Row: its key value, or its 1-based position when the table has no key
-    row: String,
+    /// One row: its key, or #N for the row at position N (or choose rows with --rows,
+    /// --where or --duplicates)
+    row: Option<String>,
+    /// Leave out every row that repeats an earlier row (the first stays)
+    #[arg(long, conflicts_with_all = ["row", "rows", "condition"])]
+    duplicates: bool,
+    /// With --duplicates: compare only these columns (comma-separated)
+    #[arg(
+        long,
+        value_name = "COLUMNS",
+        requires = "duplicates",
+        value_delimiter = ','
+    )]
+    by: Vec<String>,
+    #[command(flatten)]
+    choice: RowChoice,
+    /// Record the fix even if it chooses no row now
+    #[arg(long)]
+    allow_empty: bool,
     #[command(flatten)]
     meta: FixMeta,
 }
@@ -103,52 +147,65 @@ pub struct DistrustArgs {
     meta: FixMeta,
 }
 
-fn record(cx: &CliContext, table: String, action: FixAction, meta: FixMeta) -> Result<i32> {
-    let mut store = cx.store()?;
-    let now = cx.now()?;
-    let req = FixRequest {
-        table,
-        action,
-        why: meta.why,
-        evidence: meta.evidence,
-        consulted: meta.consulted,
-    };
-    let recorded = ledger::record_fix(&mut store, req, &now)?;
-    let mut o = out::stdout();
-    writeln!(
-        o,
-        "{} {} (pending; 'emend commit -m ...' signs it)",
-        paint(GOOD, "recorded"),
-        recorded.fix.action.describe()
-    )?;
-    if let Some(note) = recorded.note {
-        writeln!(o, "  note: {note}")?;
-    }
-    Ok(0)
-}
-
 fn row_id(cx: &CliContext, table: &str, text: &str) -> Result<emend::model::RowId> {
     let store = cx.store()?;
     Ok(query::parse_row(&store.read(), table, text)?)
 }
 
 pub fn set(cx: &CliContext, a: SetArgs) -> Result<i32> {
-    let value = match (a.value, a.missing) {
-        (Some(v), false) => Some(v),
-        (None, true) => None,
-        _ => bail!("give the new VALUE, or --missing to set the cell to missing"),
+    let chosen = a.choice.given();
+    let (row, column, value) = match (chosen, a.args.as_slice()) {
+        (false, [row, column]) => (Some(row.clone()), column.clone(), None),
+        (false, [row, column, value]) => (Some(row.clone()), column.clone(), Some(value.clone())),
+        (false, [_]) => bail!(
+            "name the row and the column: 'emend set TABLE ROW COLUMN VALUE', or choose rows with --rows or --where"
+        ),
+        (true, [column]) => (None, column.clone(), None),
+        (true, [column, value]) => (None, column.clone(), Some(value.clone())),
+        (true, _) => bail!(
+            "with --rows or --where, give COLUMN [VALUE] only: 'emend set TABLE COLUMN VALUE --rows K1,K2'"
+        ),
+        (false, _) => bail!("'emend set TABLE ROW COLUMN VALUE'"),
     };
-    let row = row_id(cx, &a.table, &a.row)?;
-    record(
-        cx,
-        a.table,
-        FixAction::Set {
-            row,
-            column: a.column,
+    let transform = match (value, a.missing, a.negate, a.scale, a.round) {
+        (Some(v), false, false, None, None) => Transform::Value(Some(v)),
+        (None, true, false, None, None) => Transform::Value(None),
+        (None, false, true, None, None) => Transform::Negate,
+        (None, false, false, Some(p), None) => Transform::Scale(p),
+        (None, false, false, None, Some(n)) => Transform::Round(n),
+        (None, false, false, None, None) => {
+            bail!(
+                "give the new VALUE, or one of --missing, --negate, --scale POWER, --round PLACES"
+            )
+        }
+        (Some(_), ..) => {
+            bail!("give a VALUE or a transform (--missing, --negate, --scale, --round), not both")
+        }
+        _ => bail!("give one of --missing, --negate, --scale, --round"),
+    };
+    let action = match (row, transform) {
+        // One cell set to a value or to missing keeps the single-cell form.
+        (Some(r), Transform::Value(value)) if !r.starts_with('#') => FixAction::Set {
+            row: row_id(cx, &a.table, &r)?,
+            column,
             value,
         },
-        a.meta,
-    )
+        (Some(r), transform) => {
+            let store = cx.store()?;
+            let rows = query::parse_rows(&store.read(), &a.table, &[r])?;
+            FixAction::Edit {
+                column,
+                rows: Rows::Listed(rows),
+                transform,
+            }
+        }
+        (None, transform) => FixAction::Edit {
+            column,
+            rows: a.choice.resolve(cx, &a.table, false)?,
+            transform,
+        },
+    };
+    edits::record(cx, a.table, action, a.meta, a.allow_empty)
 }
 
 fn read_map(path: &std::path::Path) -> Result<Vec<(String, String)>> {
@@ -203,7 +260,7 @@ pub fn recode(cx: &CliContext, a: RecodeArgs) -> Result<i32> {
         (None, None, Some(map)) => read_map(map)?,
         _ => bail!("give --from VALUE --to VALUE, or --map FILE"),
     };
-    record(
+    edits::record(
         cx,
         a.table,
         FixAction::Recode {
@@ -211,11 +268,12 @@ pub fn recode(cx: &CliContext, a: RecodeArgs) -> Result<i32> {
             pairs,
         },
         a.meta,
+        a.allow_empty,
     )
 }
 
 pub fn missing(cx: &CliContext, a: MissingArgs) -> Result<i32> {
-    record(
+    edits::record(
         cx,
         a.table,
         FixAction::Missing {
@@ -223,20 +281,43 @@ pub fn missing(cx: &CliContext, a: MissingArgs) -> Result<i32> {
             codes: a.codes,
         },
         a.meta,
+        a.allow_empty,
     )
 }
 
 pub fn exclude(cx: &CliContext, a: ExcludeArgs) -> Result<i32> {
-    let row = row_id(cx, &a.table, &a.row)?;
-    record(cx, a.table, FixAction::Exclude { row }, a.meta)
+    let action = if a.duplicates {
+        FixAction::ExcludeRows {
+            rows: Rows::Duplicates(a.by),
+            resolved: Vec::new(),
+        }
+    } else if let Some(r) = a.row {
+        if a.choice.given() {
+            bail!("name one ROW, or choose rows with --rows or --where, not both");
+        }
+        let store = cx.store()?;
+        let mut rows = query::parse_rows(&store.read(), &a.table, &[r])?;
+        FixAction::Exclude {
+            row: rows.remove(0),
+        }
+    } else if a.choice.given() {
+        FixAction::ExcludeRows {
+            rows: a.choice.resolve(cx, &a.table, false)?,
+            resolved: Vec::new(),
+        }
+    } else {
+        bail!("choose what to leave out: a ROW, --rows, --where or --duplicates");
+    };
+    edits::record(cx, a.table, action, a.meta, a.allow_empty)
 }
 
 pub fn distrust(cx: &CliContext, a: DistrustArgs) -> Result<i32> {
-    record(
+    edits::record(
         cx,
         a.table,
         FixAction::Distrust { column: a.column },
         a.meta,
+        false,
     )
 }
 
@@ -319,6 +400,31 @@ pub fn fix_json(fix: &Fix, added_at: Option<&str>) -> serde_json::Value {
             obj.insert(
                 "rules_file".into(),
                 serde_json::json!({"name": file_name, "blake3": blob.to_hex(), "bytes": n_bytes}),
+            );
+        }
+        FixAction::Edit {
+            column,
+            rows,
+            transform,
+        } => {
+            obj.insert("column".into(), column.clone().into());
+            obj.insert("rows".into(), rows.to_string().into());
+            obj.insert("transform".into(), transform.to_string().into());
+        }
+        FixAction::ExcludeRows { rows, resolved }
+        | FixAction::Keep { rows, resolved, .. }
+        | FixAction::Note { rows, resolved, .. } => {
+            if let Some(c) = fix.action.column() {
+                obj.insert("column".into(), c.into());
+            }
+            obj.insert("rows".into(), rows.to_string().into());
+            obj.insert(
+                "resolved_rows".into(),
+                resolved
+                    .iter()
+                    .map(ToString::to_string)
+                    .collect::<Vec<_>>()
+                    .into(),
             );
         }
     }

@@ -7,6 +7,7 @@ mod commit;
 mod context;
 mod demo;
 mod diff;
+mod edits;
 mod export;
 mod fixes;
 mod id;
@@ -71,8 +72,18 @@ enum Command {
     /// Declare missing-value codes for a column; matching cells become missing
     #[command(allow_negative_numbers = true)]
     Missing(fixes::MissingArgs),
-    /// Leave a row out of the cleaned data
+    /// Tidy text in a column: spacing, a final full stop, letter case
+    Tidy(edits::TidyArgs),
+    /// Replace a pattern in a column's text (regular expression)
+    Replace(edits::ReplaceArgs),
+    /// Rewrite dates written in a stated day/month order as ISO 8601
+    Dates(edits::DatesArgs),
+    /// Leave rows out of the cleaned data: one, chosen, or the duplicates
     Exclude(fixes::ExcludeArgs),
+    /// Keep values as they are, on purpose, with the reason (answers what profile found)
+    Keep(edits::KeepArgs),
+    /// Flag cells or rows for review without changing them
+    Note(edits::NoteArgs),
     /// Mark a column as not to be trusted (export leaves it out)
     Distrust(fixes::DistrustArgs),
     /// Adopt a rules file for a table (a signed commit with a reason)
@@ -81,8 +92,8 @@ enum Command {
     Check(check::CheckArgs),
     /// List the fixes waiting to be committed
     Status(JsonFlag),
-    /// Drop every pending fix
-    Discard,
+    /// Drop one pending fix (by its number in 'emend status'), or every pending fix
+    Discard(commit::DiscardArgs),
     /// Replay the fixes made on a table's previous extract onto its newest one
     Carry(commit::CarryArgs),
     /// Sign and commit the pending fixes
@@ -172,9 +183,14 @@ fn run(cli: Cli) -> Result<i32> {
         Command::Recode(a) => fixes::recode(cx, a),
         Command::Missing(a) => fixes::missing(cx, a),
         Command::Exclude(a) => fixes::exclude(cx, a),
+        Command::Tidy(a) => edits::tidy(cx, a),
+        Command::Replace(a) => edits::replace(cx, a),
+        Command::Dates(a) => edits::dates(cx, a),
+        Command::Keep(a) => edits::keep(cx, a),
+        Command::Note(a) => edits::note(cx, a),
         Command::Distrust(a) => fixes::distrust(cx, a),
         Command::Status(f) => commit::status(cx, f.json),
-        Command::Discard => commit::discard(cx),
+        Command::Discard(a) => commit::discard(cx, a),
         Command::Rules(a) => check::adopt(cx, a),
         Command::Check(a) => check::check(cx, a),
         Command::Carry(a) => commit::carry(cx, a),

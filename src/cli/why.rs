@@ -178,6 +178,7 @@ pub fn why_cmd(cx: &CliContext, a: WhyArgs) -> Result<i32> {
             "value": story.value,
             "row_excluded_by": story.row_excluded_by.as_ref().map(event_json),
             "column_distrusted_by": story.column_distrusted_by.as_ref().map(event_json),
+            "decisions": story.decisions.iter().map(event_json).collect::<Vec<_>>(),
         }))?;
         return Ok(0);
     }
@@ -207,6 +208,15 @@ pub fn why_cmd(cx: &CliContext, a: WhyArgs) -> Result<i32> {
     }
     if let Some(e) = &story.column_distrusted_by {
         writeln!(o, "  the column is distrusted:")?;
+        print_event(&mut o, e, false)?;
+    }
+    for e in &story.decisions {
+        let what = if e.kind == "keep" {
+            "the value is kept on purpose:"
+        } else {
+            "a note for review:"
+        };
+        writeln!(o, "  {what}")?;
         print_event(&mut o, e, false)?;
     }
     writeln!(

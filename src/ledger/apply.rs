@@ -2,35 +2,114 @@
 //! `missing` and `exclude` do to cells. Committing pending fixes and carrying fixes to a new
 //! extract both go through [`FixApplier`], so a fix means the same on every extract.
 
-use crate::error::Result;
+use crate::checks::Condition;
+use crate::error::{Error, Result};
+use crate::model::edit::Rows;
 use crate::model::{Fix, FixAction, RowId};
-use crate::query::Version;
-use std::collections::HashMap;
+use crate::values::transform::{Compiled, TransformError};
+use std::collections::{HashMap, HashSet};
 
-/// A fix prepared against one version's header: its column index and, for value-level fixes,
-/// the values it looks for, hashed (a recode map may hold thousands of pairs).
+/// How a fix that chooses rows finds them.
+#[derive(Debug)]
+enum Chooser<'f> {
+    /// The fix does not choose rows.
+    Nothing,
+    /// These rows.
+    Listed(HashSet<&'f RowId>),
+    /// Rows where a condition holds.
+    Where(Condition),
+    /// Rows whose chosen cells repeat an earlier row's: a 128-bit BLAKE3 fingerprint of each
+    /// row seen (16 bytes a row; two different rows share one with odds near 2^-128).
+    Duplicates {
+        columns: Option<Vec<usize>>,
+        seen: HashSet<[u8; 16]>,
+    },
+    /// A column the fix needs is not in this version: it chooses nothing.
+    Inert,
+}
+
+/// A fix prepared against one version's header: its column index, the values it looks for
+/// (hashed: a recode map may hold thousands of pairs), how it chooses rows and its transform.
 #[derive(Debug)]
 pub struct FixApplier<'f> {
     fix: &'f Fix,
     col: Option<usize>,
     /// For recode: from → Some(to); for missing: code → None.
     lookup: HashMap<&'f str, Option<&'f str>>,
-    /// Whether a row-level fix (set, exclude) met its row.
+    chooser: Chooser<'f>,
+    transform: Option<Compiled<'f>>,
+    /// Whether a single-row fix (set, exclude) met its row.
     found: bool,
+    /// Listed rows met so far.
+    met: HashSet<&'f RowId>,
+    /// The rows chosen, in extract order.
+    chosen: Vec<RowId>,
+    /// The first cell the transform could not change, and why.
+    failed: Option<(RowId, TransformError)>,
+}
+
+fn listed(rows: &Rows) -> Option<&Vec<RowId>> {
+    match rows {
+        Rows::Listed(r) => Some(r),
+        _ => None,
+    }
 }
 
 impl<'f> FixApplier<'f> {
-    /// Prepares `fix` against `version`'s header; the fix's column must exist there.
-    pub fn new(fix: &'f Fix, version: &Version) -> Result<FixApplier<'f>> {
-        let col = fix
-            .action
-            .column()
-            .map(|c| version.col_idx(c))
-            .transpose()?;
-        Ok(FixApplier::with_column(fix, col))
+    /// Prepares `fix` against a version's `header`; every column the fix names (its own and
+    /// those of its condition) must be there, and its pattern must compile.
+    pub fn new(fix: &'f Fix, header: &[String]) -> Result<FixApplier<'f>> {
+        let idx = |c: &str| {
+            header
+                .iter()
+                .position(|h| h == c)
+                .ok_or_else(|| Error::UnknownColumn {
+                    table: fix.table.clone(),
+                    column: c.to_owned(),
+                })
+        };
+        let col = fix.action.column().map(idx).transpose()?;
+        let mut a = FixApplier::with_column(fix, col);
+        if let Some(rows) = a.rows() {
+            a.chooser = match rows {
+                Rows::Listed(r) => Chooser::Listed(r.iter().collect()),
+                Rows::Where(clauses) => {
+                    Chooser::Where(Condition::new(clauses, header).map_err(|column| {
+                        Error::UnknownColumn {
+                            table: fix.table.clone(),
+                            column,
+                        }
+                    })?)
+                }
+                Rows::Duplicates(cols) => Chooser::Duplicates {
+                    columns: if cols.is_empty() {
+                        None
+                    } else {
+                        Some(cols.iter().map(|c| idx(c)).collect::<Result<_>>()?)
+                    },
+                    seen: HashSet::new(),
+                },
+            };
+        }
+        if let FixAction::Edit { transform, .. } = &fix.action {
+            a.transform =
+                Some(Compiled::new(transform).map_err(|e| Error::Invalid(e.to_string()))?);
+        }
+        Ok(a)
     }
 
-    /// Prepares `fix` with its column index given (`None` for fixes without a column).
+    /// Prepares `fix` against `header` where columns may be gone (carrying to a new extract):
+    /// a fix that names a column not there changes nothing.
+    pub fn lenient(fix: &'f Fix, header: &[String]) -> FixApplier<'f> {
+        FixApplier::new(fix, header).unwrap_or_else(|_| {
+            let mut a = FixApplier::with_column(fix, None);
+            a.chooser = Chooser::Inert;
+            a
+        })
+    }
+
+    /// Prepares a value-level or single-row fix with its column index given (`None` for
+    /// fixes without a column). Fixes that choose rows need [`FixApplier::new`].
     pub fn with_column(fix: &'f Fix, col: Option<usize>) -> FixApplier<'f> {
         let lookup = match &fix.action {
             // First match wins, as documented: keep the first pair for each `from`.
@@ -48,7 +127,22 @@ impl<'f> FixApplier<'f> {
             fix,
             col,
             lookup,
+            chooser: Chooser::Nothing,
+            transform: None,
             found: false,
+            met: HashSet::new(),
+            chosen: Vec::new(),
+            failed: None,
+        }
+    }
+
+    fn rows(&self) -> Option<&'f Rows> {
+        match &self.fix.action {
+            FixAction::Edit { rows, .. }
+            | FixAction::ExcludeRows { rows, .. }
+            | FixAction::Keep { rows, .. }
+            | FixAction::Note { rows, .. } => Some(rows),
+            _ => None,
         }
     }
 
@@ -68,18 +162,67 @@ impl<'f> FixApplier<'f> {
         self.lookup.get(value).copied()
     }
 
-    /// Whether a value-level fix would change this row's cell.
-    pub fn matches(&self, cells: &[Option<String>]) -> bool {
+    /// Whether the fix chooses this row (rows are given in extract order, each once).
+    fn choose(&mut self, id: &RowId, cells: &[Option<String>]) -> bool {
+        match &mut self.chooser {
+            Chooser::Nothing | Chooser::Inert => false,
+            Chooser::Listed(rows) => match rows.get(id) {
+                Some(r) => {
+                    self.met.insert(r);
+                    true
+                }
+                None => false,
+            },
+            Chooser::Where(c) => c.holds(cells),
+            Chooser::Duplicates { columns, seen } => {
+                let mut h = blake3::Hasher::new();
+                let mut put = |c: &Option<String>| match c {
+                    None => {
+                        h.update(&[0]);
+                    }
+                    Some(v) => {
+                        h.update(&[1]);
+                        h.update(&(v.len() as u64).to_le_bytes());
+                        h.update(v.as_bytes());
+                    }
+                };
+                match columns {
+                    Some(cols) => cols.iter().for_each(|&i| put(&cells[i])),
+                    None => cells.iter().for_each(put),
+                }
+                let mut print = [0u8; 16];
+                print.copy_from_slice(&h.finalize().as_bytes()[..16]);
+                !seen.insert(print)
+            }
+        }
+    }
+
+    /// Whether the fix would change (or, for keep, note and exclude, choose) this row; for
+    /// counting matches on a new extract. Rows are given in extract order, each once.
+    pub fn matches(&mut self, id: &RowId, cells: &[Option<String>]) -> bool {
         match (&self.fix.action, self.col) {
             (FixAction::Recode { .. } | FixAction::Missing { .. }, Some(c)) => cells[c]
                 .as_deref()
                 .is_some_and(|v| self.value_for(v).is_some()),
+            (FixAction::Edit { .. }, Some(c)) => {
+                self.choose(id, cells)
+                    && self
+                        .transform
+                        .as_ref()
+                        .and_then(|t| t.apply(cells[c].as_deref()).ok())
+                        .is_some_and(|new| new != cells[c])
+            }
+            (
+                FixAction::ExcludeRows { .. } | FixAction::Keep { .. } | FixAction::Note { .. },
+                _,
+            ) => self.choose(id, cells),
             _ => false,
         }
     }
 
     /// Applies the fix to the row `id`: changes `cells` and `excluded` in place, and calls
-    /// `changed(column, old, new)` for each cell whose value it changes.
+    /// `changed(column, old, new)` for each cell whose value it changes. Rows are given in
+    /// extract order, each once.
     pub fn apply(
         &mut self,
         id: &RowId,
@@ -114,16 +257,55 @@ impl<'f> FixApplier<'f> {
                     *excluded = true;
                 }
             }
+            FixAction::Edit { .. } => {
+                let Some(c) = self.col else { return };
+                if self.choose(id, cells) {
+                    self.chosen.push(id.clone());
+                    let t = self.transform.as_ref().expect("an edit has its transform");
+                    match t.apply(cells[c].as_deref()) {
+                        Ok(new) => put(c, new, cells),
+                        Err(e) => {
+                            if self.failed.is_none() {
+                                self.failed = Some((id.clone(), e));
+                            }
+                        }
+                    }
+                }
+            }
+            FixAction::ExcludeRows { .. } => {
+                if self.choose(id, cells) {
+                    self.chosen.push(id.clone());
+                    *excluded = true;
+                }
+            }
+            FixAction::Keep { .. } | FixAction::Note { .. } => {
+                if self.choose(id, cells) {
+                    self.chosen.push(id.clone());
+                }
+            }
             FixAction::Distrust { .. } | FixAction::Rules { .. } => {}
         }
     }
 
-    /// For a row-level fix (set, exclude) that never met its row: the row it names.
+    /// After every row: a row the fix names that it never met.
     pub fn missed_row(&self) -> Option<&'f RowId> {
         match &self.fix.action {
             FixAction::Set { row, .. } | FixAction::Exclude { row } if !self.found => Some(row),
-            _ => None,
+            _ => self
+                .rows()
+                .and_then(listed)
+                .and_then(|rows| rows.iter().find(|r| !self.met.contains(r))),
         }
+    }
+
+    /// After every row: the rows the fix chose, in extract order.
+    pub fn chosen(&self) -> &[RowId] {
+        &self.chosen
+    }
+
+    /// After every row: the first chosen cell the transform could not change, and why.
+    pub fn failed(&self) -> Option<&(RowId, TransformError)> {
+        self.failed.as_ref()
     }
 }
 
@@ -170,7 +352,10 @@ mod tests {
             seen,
             vec![(1, Some("mill craek".into()), Some("Mill Creek".into()))]
         );
-        assert!(!a.matches(&row), "a recoded cell no longer matches");
+        assert!(
+            !a.matches(&RowId("S-1".into()), &row),
+            "a recoded cell no longer matches"
+        );
     }
 
     #[test]
@@ -182,7 +367,7 @@ mod tests {
         let mut a = FixApplier::with_column(&m, Some(0));
         let mut excluded = false;
         let mut row = cells(&[Some("-999")]);
-        assert!(a.matches(&row));
+        assert!(a.matches(&RowId("1".into()), &row));
         a.apply(&RowId("1".into()), &mut row, &mut excluded, |_, _, _| {});
         assert_eq!(row[0], None);
         let mut other = cells(&[Some("-99")]);

@@ -10,6 +10,7 @@
 
 use super::apply::FixApplier;
 use crate::error::{Error, Result};
+use crate::model::edit::Rows;
 use crate::model::{Change, Fix, FixAction, Origin, RowId};
 use crate::query::{Version, align_positions, decode, resolve};
 use crate::store::Store;
@@ -107,6 +108,21 @@ impl Carried {
         }
         parts.join("; ")
     }
+}
+
+/// How a fix chooses its rows, for fixes that do.
+fn chosen_rows(action: &FixAction) -> Option<&Rows> {
+    match action {
+        FixAction::Edit { rows, .. }
+        | FixAction::ExcludeRows { rows, .. }
+        | FixAction::Keep { rows, .. }
+        | FixAction::Note { rows, .. } => Some(rows),
+        _ => None,
+    }
+}
+
+fn rows_present(rows: &HashMap<String, Vec<Option<String>>>, r: &RowId) -> bool {
+    rows.contains_key(r.as_str())
 }
 
 /// Replay the fixes made on `table`'s previous extract (up to `from`, default the last commit
@@ -209,12 +225,16 @@ pub fn carry(
         {
             wanted.insert(r.0);
         }
+        if let Some(Rows::Listed(list)) = chosen_rows(&fix.action) {
+            wanted.extend(list.iter().filter_map(map_row).map(|r| r.0));
+        }
     }
     let col_of = |c: &str| new_version.col_idx(c).ok();
     // Per fix: how it applies in the new extract (its column there, the values it looks for).
-    let appliers: Vec<FixApplier<'_>> = fixes
+    let header = new_version.header().to_vec();
+    let mut appliers: Vec<FixApplier<'_>> = fixes
         .iter()
-        .map(|(fix, _)| FixApplier::with_column(fix, fix.action.column().and_then(col_of)))
+        .map(|(fix, _)| FixApplier::lenient(fix, &header))
         .collect();
     let mut rows: HashMap<String, Vec<Option<String>>> = HashMap::new();
     // Per value-level fix: (cells matching now, rows matching now).
@@ -223,8 +243,8 @@ pub fn carry(
         if wanted.contains(r.id.as_str()) {
             rows.insert(r.id.0.clone(), r.cells.to_vec());
         }
-        for (k, applier) in appliers.iter().enumerate() {
-            if applier.matches(r.cells) {
+        for (k, applier) in appliers.iter_mut().enumerate() {
+            if applier.matches(r.id, r.cells) {
                 matches[k].0 += 1;
                 matches[k].1.insert(r.id.0.clone());
             }
@@ -232,6 +252,7 @@ pub fn carry(
         Ok(ControlFlow::Continue(()))
     })?;
 
+    let rows_seen = &rows;
     let mut out = Vec::new();
     for (k, (mut fix, edits)) in fixes.into_iter().enumerate() {
         if let Some(col) = fix.action.column()
@@ -318,7 +339,43 @@ pub fn carry(
                 }
             }
             FixAction::Distrust { .. } | FixAction::Rules { .. } => Outcome::Applied,
+            FixAction::Edit { rows, .. }
+            | FixAction::ExcludeRows { rows, .. }
+            | FixAction::Keep { rows, .. }
+            | FixAction::Note { rows, .. } => match rows {
+                // Listed rows follow their rows; rows gone are dropped from the fix.
+                Rows::Listed(list) => {
+                    let here: Vec<RowId> = list
+                        .iter()
+                        .filter_map(map_row)
+                        .filter(|r| rows_present(rows_seen, r))
+                        .collect();
+                    if cells.iter().any(|c| c.outcome == Outcome::Conflict) {
+                        Outcome::Conflict
+                    } else if here.is_empty() {
+                        Outcome::RowGone
+                    } else {
+                        *list = here;
+                        Outcome::Applied
+                    }
+                }
+                // A condition or a duplicate search is evaluated afresh on the new extract.
+                Rows::Where(_) | Rows::Duplicates(_) => {
+                    if matches_now > 0 {
+                        Outcome::Applied
+                    } else {
+                        Outcome::FixedAtSource
+                    }
+                }
+            },
         };
+        // Rows are resolved again when the carried fix is committed.
+        if let FixAction::ExcludeRows { resolved, .. }
+        | FixAction::Keep { resolved, .. }
+        | FixAction::Note { resolved, .. } = &mut fix.action
+        {
+            resolved.clear();
+        }
         out.push(Carried {
             fix,
             outcome,

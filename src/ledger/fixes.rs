@@ -6,6 +6,7 @@ use super::apply::FixApplier;
 use super::seal::{CommitContext, CommitOutcome, seal};
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, Digest};
+use crate::model::edit::Rows;
 use crate::model::{CellEdit, Change, Evidence, Fix, FixAction, FixRecord, RowId, TableVersion};
 use crate::query::Version;
 use crate::store::{PIECE_SIZE, PieceEncoder, Reader, Store, WriteTx};
@@ -27,6 +28,60 @@ pub struct FixRequest {
     pub evidence: Vec<PathBuf>,
     /// Who was consulted.
     pub consulted: Option<String>,
+    /// Record the fix even when it changes (or chooses) nothing in the latest version.
+    pub allow_empty: bool,
+}
+
+/// What a fix would do to the latest version, found in one pass when it is recorded.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct Preview {
+    /// Rows it chooses (for fixes that choose rows).
+    pub rows: u64,
+    /// Cells it changes.
+    pub cells: u64,
+    /// The first few changes: row, value before, value after.
+    pub samples: Vec<(RowId, Option<String>, Option<String>)>,
+}
+
+/// Changes listed in a [`Preview`].
+pub const PREVIEW_SAMPLES: usize = 3;
+
+/// One pass over `version` applying `fix` alone: what it would change, or why it cannot.
+fn preview(reader: &Reader<'_>, version: &Version, fix: &Fix) -> Result<Preview> {
+    let header = version.header().to_vec();
+    let mut a = FixApplier::new(fix, &header)?;
+    let mut out = Preview::default();
+    let mut cells: Vec<Option<String>> = Vec::new();
+    version.for_each_row(reader, |row| {
+        if row.excluded {
+            return Ok(ControlFlow::Continue(()));
+        }
+        cells.clear();
+        cells.extend_from_slice(row.cells);
+        let mut excluded = false;
+        let before = a.chosen().len();
+        a.apply(row.id, &mut cells, &mut excluded, |_, old, new| {
+            out.cells += 1;
+            if out.samples.len() < PREVIEW_SAMPLES {
+                out.samples.push((row.id.clone(), old, new));
+            }
+        });
+        out.rows += (a.chosen().len() - before) as u64;
+        Ok(ControlFlow::Continue(()))
+    })?;
+    if let Some(row) = a.missed_row() {
+        return Err(Error::UnknownRow {
+            table: version.table.clone(),
+            row: row.to_string(),
+        });
+    }
+    if let Some((row, e)) = a.failed() {
+        let column = fix.action.column().unwrap_or_default();
+        return Err(Error::Invalid(format!(
+            "row {row} {column}: {e}; choose the rows it fits with --rows or --where"
+        )));
+    }
+    Ok(out)
 }
 
 /// A fix that was recorded as pending.
@@ -36,10 +91,12 @@ pub struct Recorded {
     pub fix: Fix,
     /// A remark for the user (e.g. the cell already holds the value).
     pub note: Option<String>,
+    /// What it will change in the latest version, for fixes checked by a pass over it.
+    pub preview: Option<Preview>,
 }
 
 /// Check a fix against the table's latest version and record it as pending.
-pub fn record_fix(store: &mut Store, req: FixRequest, now: &str) -> Result<Recorded> {
+pub fn record_fix(store: &mut Store, mut req: FixRequest, now: &str) -> Result<Recorded> {
     if req.why.trim().is_empty() {
         return Err(Error::EmptyReason);
     }
@@ -50,6 +107,25 @@ pub fn record_fix(store: &mut Store, req: FixRequest, now: &str) -> Result<Recor
         return Err(Error::UnknownTable(req.table));
     }
     let version = Version::load(&reader, &req.table, head, false)?;
+    // Copies of a keyed table differ in their key: compare the other columns, named in the
+    // fix so it means the same on every extract.
+    if let FixAction::ExcludeRows {
+        rows: Rows::Duplicates(columns),
+        ..
+    } = &mut req.action
+    {
+        for c in columns.iter() {
+            version.col_idx(c)?;
+        }
+        if columns.is_empty() && !version.def.key.is_empty() {
+            *columns = version
+                .header()
+                .iter()
+                .filter(|h| !version.def.key.contains(h))
+                .cloned()
+                .collect();
+        }
+    }
     let mut note = None;
     if let Some(col) = req.action.column() {
         version.col_idx(col)?;
@@ -98,11 +174,52 @@ pub fn record_fix(store: &mut Store, req: FixRequest, now: &str) -> Result<Recor
             }
         }
         FixAction::Distrust { .. } => {}
+        FixAction::Edit { .. }
+        | FixAction::ExcludeRows { .. }
+        | FixAction::Keep { .. }
+        | FixAction::Note { .. } => {}
         FixAction::Rules { .. } => {
             return Err(Error::Invalid(
                 "a rules file is adopted with 'emend rules TABLE FILE --why ...'".into(),
             ));
         }
+    }
+    // Fixes that act on many cells are tried on the latest version first (one pass): a fix
+    // that would change nothing is refused unless asked for, so a misspelt value or a
+    // condition that matches no row is caught before it is signed.
+    let mut shown = None;
+    let tried = !matches!(
+        req.action,
+        FixAction::Set { .. } | FixAction::Exclude { .. } | FixAction::Distrust { .. }
+    );
+    if tried {
+        let probe = Fix {
+            table: req.table.clone(),
+            action: req.action.clone(),
+            why: String::new(),
+            evidence: Vec::new(),
+            consulted: None,
+            origins: Vec::new(),
+        };
+        let p = preview(&reader, &version, &probe)?;
+        let chooses = matches!(
+            req.action,
+            FixAction::ExcludeRows { .. } | FixAction::Keep { .. } | FixAction::Note { .. }
+        );
+        let nothing = if chooses { p.rows == 0 } else { p.cells == 0 };
+        if nothing && !req.allow_empty {
+            return Err(Error::Invalid(format!(
+                "{} {} in the latest version of '{}'; check the values or the condition, or give --allow-empty to record it anyway",
+                req.action.describe(),
+                if chooses {
+                    "chooses no row"
+                } else {
+                    "changes no cell"
+                },
+                req.table
+            )));
+        }
+        shown = Some(p);
     }
     let mut evidence = Vec::new();
     for path in &req.evidence {
@@ -126,7 +243,11 @@ pub fn record_fix(store: &mut Store, req: FixRequest, now: &str) -> Result<Recor
     };
     tx.add_pending(&fix, None, now)?;
     tx.commit()?;
-    Ok(Recorded { fix, note })
+    Ok(Recorded {
+        fix,
+        note,
+        preview: shown,
+    })
 }
 
 /// Store any file (evidence) content-addressed, streaming it in pieces.
@@ -174,18 +295,37 @@ pub fn discard(store: &mut Store) -> Result<usize> {
     Ok(n)
 }
 
+/// Drop the `n`th pending fix (1-based, in the order `status` lists them) and return it.
+pub fn discard_one(store: &mut Store, n: usize) -> Result<Fix> {
+    let tx = store.transaction()?;
+    let pending = tx.read().pending()?;
+    let Some(p) = n.checked_sub(1).and_then(|i| pending.get(i)) else {
+        return Err(Error::Invalid(format!(
+            "there is no pending fix {n}: {} are pending ('emend status' lists them)",
+            pending.len()
+        )));
+    };
+    tx.drop_pending(p.id)?;
+    let fix = p.fix.clone();
+    tx.commit()?;
+    Ok(fix)
+}
+
+/// Per fix: the cells it changed and the rows it chose; and the table version after all.
+type Resolved = (Vec<Vec<CellEdit>>, Vec<Vec<RowId>>, TableVersion);
+
 /// Apply the pending fixes of one table to a version, row by row, recording each cell changed.
 fn resolve_fixes(
     reader: &Reader<'_>,
     version: &Version,
     fixes: &[&Fix],
-) -> Result<(Vec<Vec<CellEdit>>, TableVersion)> {
+) -> Result<Resolved> {
+    let header = version.header().to_vec();
     let mut appliers: Vec<FixApplier<'_>> = fixes
         .iter()
-        .map(|f| FixApplier::new(f, version))
+        .map(|f| FixApplier::new(f, &header))
         .collect::<Result<_>>()?;
     let mut edits: Vec<Vec<CellEdit>> = vec![Vec::new(); fixes.len()];
-    let header = version.header().to_vec();
     let mut distrusted = version.distrusted().to_vec();
     for a in &appliers {
         if let (FixAction::Distrust { .. }, Some(c)) = (&a.fix().action, a.column()) {
@@ -219,8 +359,16 @@ fn resolve_fixes(
             row: row.to_string(),
         });
     }
+    if let Some((a, (row, e))) = appliers.iter().find_map(|a| a.failed().map(|f| (a, f))) {
+        return Err(Error::Invalid(format!(
+            "{}: row {row}: {e}; discard the fix and choose rows it fits",
+            a.fix().action.describe()
+        )));
+    }
+    let chosen: Vec<Vec<RowId>> = appliers.iter().map(|a| a.chosen().to_vec()).collect();
     Ok((
         edits,
+        chosen,
         TableVersion {
             table: version.table.clone(),
             hash: hash.finish(&header, &distrusted),
@@ -261,12 +409,17 @@ pub fn commit_pending(
             .collect();
         let fixes: Vec<&Fix> = idx.iter().map(|&i| &pending[i].fix).collect();
         let version = Version::load(&reader, table, head, false)?;
-        let (edits, tv) = resolve_fixes(&reader, &version, &fixes)?;
-        for (i, e) in idx.into_iter().zip(edits) {
-            records[i] = Some(FixRecord {
-                fix: pending[i].fix.clone(),
-                edits: e,
-            });
+        let (edits, chosen, tv) = resolve_fixes(&reader, &version, &fixes)?;
+        for ((i, e), rows) in idx.into_iter().zip(edits).zip(chosen) {
+            let mut fix = pending[i].fix.clone();
+            // Fixes that choose rows sign the exact rows they chose.
+            if let FixAction::ExcludeRows { resolved, .. }
+            | FixAction::Keep { resolved, .. }
+            | FixAction::Note { resolved, .. } = &mut fix.action
+            {
+                *resolved = rows;
+            }
+            records[i] = Some(FixRecord { fix, edits: e });
         }
         versions.push(tv);
     }
@@ -344,6 +497,7 @@ mod tests {
             why: "test".into(),
             evidence: Vec::new(),
             consulted: None,
+            allow_empty: false,
         };
         let key = record_fix(
             &mut kit.store,

@@ -22,7 +22,10 @@ pub(crate) mod testkit;
 pub mod trust;
 
 pub use carry::carry;
-pub use fixes::{FixRequest, Recorded, commit_pending, discard, record_fix, store_file};
+pub use fixes::{
+    FixRequest, PREVIEW_SAMPLES, Preview, Recorded, commit_pending, discard, discard_one,
+    record_fix, store_file,
+};
 pub use ingest::{check_table_name, ingest};
 pub use seal::{CommitContext, CommitOutcome, seal};
 pub use tag::{check_tag_name, tag};

@@ -63,6 +63,7 @@ impl Kit {
             why: "test decision".into(),
             evidence: Vec::new(),
             consulted: None,
+            allow_empty: false,
         };
         record_fix(&mut self.store, req, NOW).expect("record fix");
     }

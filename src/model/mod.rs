@@ -4,12 +4,19 @@
 //! a hashed struct is a `Vec` in a defined order, never a hash map, so the same body always gives
 //! the same bytes and so the same id.
 
+pub mod edit;
+
 use crate::hash::{BlobId, CommitId, Digest, VersionHash};
+use edit::{Rows, Transform};
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
 /// The version of the commit body format written by this build.
 pub const BODY_FORMAT: u32 = 1;
+
+/// Separates the row from the column in the target of a mark on one cell (a kept value, a
+/// note on a cell).
+pub const CELL_SEPARATOR: char = '\u{1e}';
 
 /// Separates the values of a composite key inside a [`RowId`].
 pub const KEY_SEPARATOR: char = '\u{1f}';
@@ -190,6 +197,43 @@ pub enum FixAction {
         /// Size in bytes.
         n_bytes: u64,
     },
+    /// Change one column's cells in the chosen rows by a transform (a value, missing, a
+    /// number or text transform).
+    Edit {
+        /// Column name.
+        column: String,
+        /// The rows.
+        rows: Rows,
+        /// How each chosen cell changes.
+        transform: Transform,
+    },
+    /// Leave the chosen rows out of the cleaned data. `rows` is how they were chosen (carried
+    /// to the next extract); `resolved` lists the rows, filled when the fix is committed.
+    ExcludeRows {
+        /// How the rows were chosen.
+        rows: Rows,
+        /// The rows excluded, in extract order.
+        resolved: Vec<RowId>,
+    },
+    /// Keep the values of one column in the chosen rows as they are, on purpose: the
+    /// findings about them are answered.
+    Keep {
+        /// Column name.
+        column: String,
+        /// The rows.
+        rows: Rows,
+        /// The rows, filled when the fix is committed.
+        resolved: Vec<RowId>,
+    },
+    /// A flag for review on cells of a column, or on whole rows (no column); changes nothing.
+    Note {
+        /// Column name, or none for whole rows.
+        column: Option<String>,
+        /// The rows.
+        rows: Rows,
+        /// The rows, filled when the fix is committed.
+        resolved: Vec<RowId>,
+    },
 }
 
 impl FixAction {
@@ -202,6 +246,10 @@ impl FixAction {
             FixAction::Exclude { .. } => "exclude",
             FixAction::Distrust { .. } => "distrust",
             FixAction::Rules { .. } => "rules",
+            FixAction::Edit { .. } => "edit",
+            FixAction::ExcludeRows { .. } => "exclude",
+            FixAction::Keep { .. } => "keep",
+            FixAction::Note { .. } => "note",
         }
     }
 
@@ -211,8 +259,13 @@ impl FixAction {
             FixAction::Set { column, .. }
             | FixAction::Recode { column, .. }
             | FixAction::Missing { column, .. }
-            | FixAction::Distrust { column } => Some(column),
-            FixAction::Exclude { .. } | FixAction::Rules { .. } => None,
+            | FixAction::Distrust { column }
+            | FixAction::Edit { column, .. }
+            | FixAction::Keep { column, .. } => Some(column),
+            FixAction::Note { column, .. } => column.as_deref(),
+            FixAction::Exclude { .. } | FixAction::Rules { .. } | FixAction::ExcludeRows { .. } => {
+                None
+            }
         }
     }
 
@@ -249,7 +302,36 @@ impl FixAction {
             } => {
                 format!("adopt rules file {file_name} ({})", blob.short())
             }
+            FixAction::Edit {
+                column,
+                rows,
+                transform,
+            } => format!("set {column} {transform} in {rows}"),
+            FixAction::ExcludeRows { rows, resolved } => {
+                format!("exclude {rows}{}", counted(resolved))
+            }
+            FixAction::Keep {
+                column,
+                rows,
+                resolved,
+            } => format!("keep {column} as it is in {rows}{}", counted(resolved)),
+            FixAction::Note {
+                column,
+                rows,
+                resolved,
+            } => match column {
+                Some(c) => format!("note on {c} in {rows}{}", counted(resolved)),
+                None => format!("note on {rows}{}", counted(resolved)),
+            },
         }
+    }
+}
+
+fn counted(resolved: &[RowId]) -> String {
+    match resolved.len() {
+        0 => String::new(),
+        1 => " (1 row)".to_owned(),
+        n => format!(" ({n} rows)"),
     }
 }
 

@@ -1294,12 +1294,17 @@ mod tests {
             .expect("a magnitude finding");
         // A shifted decimal point is one reading; a keying slip is another. The source decides.
         assert_eq!(f.suggestion, None);
-        assert_eq!(f.message, "1 cell may be off by a power of ten: 6800 may be 68 (×100)");
+        assert_eq!(
+            f.message,
+            "1 cell may be off by a power of ten: 6800 may be 68 (×100)"
+        );
     }
 
     #[test]
     fn magnitude_errors_of_one_column_are_one_finding() {
-        let mut cells = vec!["7.2", "7.4", "7.1", "7.3", "7.5", "7.0", "7.6", "7.2", "7.3", "7.4"];
+        let mut cells = vec![
+            "7.2", "7.4", "7.1", "7.3", "7.5", "7.0", "7.6", "7.2", "7.3", "7.4",
+        ];
         cells.extend(["72", "740"]);
         let p = of(&cells);
         let found: Vec<&Finding> = p

@@ -20,6 +20,6 @@ pub mod why;
 pub use commits::{decode, ingest_record, log};
 pub use diff::align_positions;
 pub use in_force::rules_at;
-pub use rev::{Rev, parse_row, resolve, version_at};
+pub use rev::{Rev, parse_row, parse_rows, resolve, version_at};
 pub use verify::VerifyReport;
 pub use version::Version;

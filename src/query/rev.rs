@@ -86,6 +86,55 @@ pub fn parse_row(reader: &Reader<'_>, table: &str, text: &str) -> Result<RowId> 
     Ok(RowId::parse_user(text, def.key.len()))
 }
 
+/// Reads a list of rows as a user writes them: keys (a composite key's values joined by
+/// commas) or `#N` for the row at 1-based position N of the latest version. Positions of a
+/// keyed table are turned into keys in one pass over the table; a position past the end is
+/// an unknown row.
+pub fn parse_rows(reader: &Reader<'_>, table: &str, texts: &[String]) -> Result<Vec<RowId>> {
+    let head = reader.head()?.map(|(s, _)| s).unwrap_or(0);
+    let (seq, _) = reader
+        .extract_at(table, head)?
+        .ok_or_else(|| Error::UnknownTable(table.to_string()))?;
+    let def = ingest_record(reader, seq)?;
+    let position = |t: &str| t.strip_prefix('#').and_then(|n| n.parse::<u64>().ok());
+    let mut out: Vec<Option<RowId>> = texts
+        .iter()
+        .map(|t| match position(t) {
+            Some(n) if def.key.is_empty() => Some(RowId::from_position(n)),
+            Some(_) => None,
+            None => Some(RowId::parse_user(t, def.key.len())),
+        })
+        .collect();
+    if out.iter().any(Option::is_none) {
+        let wanted: std::collections::HashMap<u64, Vec<usize>> = texts
+            .iter()
+            .enumerate()
+            .filter_map(|(i, t)| position(t).map(|n| (n, i)))
+            .fold(Default::default(), |mut m, (n, i)| {
+                m.entry(n).or_insert_with(Vec::new).push(i);
+                m
+            });
+        let version = crate::query::Version::load(reader, table, head, false)?;
+        version.for_each_row(reader, |row| {
+            if let Some(slots) = wanted.get(&row.pos) {
+                for &i in slots {
+                    out[i] = Some(row.id.clone());
+                }
+            }
+            Ok(std::ops::ControlFlow::Continue(()))
+        })?;
+    }
+    out.into_iter()
+        .zip(texts)
+        .map(|(r, t)| {
+            r.ok_or_else(|| Error::UnknownRow {
+                table: table.to_string(),
+                row: t.clone(),
+            })
+        })
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -85,10 +85,12 @@ impl Version {
                 "exclude" => {
                     v.excluded.insert(m.target);
                 }
-                _ => {
+                "distrust" => {
                     let col = v.col_idx(&m.target)?;
                     v.distrusted[col] = true;
                 }
+                // Kept values and notes change nothing in the version.
+                _ => {}
             }
         }
         Ok(v)

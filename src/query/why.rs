@@ -77,6 +77,9 @@ pub struct CellStory {
     pub row_excluded_by: Option<FixEvent>,
     /// The fix that distrusted its column, if any.
     pub column_distrusted_by: Option<FixEvent>,
+    /// Decisions that change no value: the value kept on purpose, notes on the cell or its
+    /// row, oldest first.
+    pub decisions: Vec<FixEvent>,
 }
 
 struct Events<'r, 'a> {
@@ -194,6 +197,18 @@ pub fn why_cell(
             None => Ok(None),
         }
     };
+    let cell = format!("{}{}{column}", row.as_str(), crate::model::CELL_SEPARATOR);
+    let mut decisions = Vec::new();
+    for (kind, target) in [
+        ("keep", cell.as_str()),
+        ("note", cell.as_str()),
+        ("note", row.as_str()),
+    ] {
+        for m in reader.marks_of(table, kind, target, ingest_seq, upto)? {
+            decisions.push(ev.event(m.seq, m.fix_idx)?);
+        }
+    }
+    decisions.sort_by_key(|e| e.seq);
     Ok(CellStory {
         table: table.to_string(),
         row: row.clone(),
@@ -206,6 +221,7 @@ pub fn why_cell(
         value,
         row_excluded_by: first_mark("exclude", row.as_str())?,
         column_distrusted_by: first_mark("distrust", column)?,
+        decisions,
     })
 }
 

@@ -83,6 +83,37 @@ impl IndexRows {
                             new: e.new.clone(),
                         });
                     }
+                    // Fixes that choose rows mark each row they chose (a kept value or a note
+                    // on a cell marks the cell: row, separator, column).
+                    let chosen = match &rec.fix.action {
+                        crate::model::FixAction::ExcludeRows { resolved, .. } => {
+                            Some(("exclude", resolved, None))
+                        }
+                        crate::model::FixAction::Keep {
+                            resolved, column, ..
+                        } => Some(("keep", resolved, Some(column.as_str()))),
+                        crate::model::FixAction::Note {
+                            resolved, column, ..
+                        } => Some(("note", resolved, column.as_deref())),
+                        _ => None,
+                    };
+                    if let Some((kind, rows, column)) = chosen {
+                        for row in rows {
+                            let target = match column {
+                                Some(c) => {
+                                    format!("{}{}{c}", row.0, crate::model::CELL_SEPARATOR)
+                                }
+                                None => row.0.clone(),
+                            };
+                            self.marks.push(MarkRow {
+                                table: table.clone(),
+                                kind: kind.into(),
+                                target,
+                                seq,
+                                fix_idx: fix_idx as u64,
+                            });
+                        }
+                    }
                     let mark = match &rec.fix.action {
                         crate::model::FixAction::Exclude { row } => {
                             Some(("exclude", row.0.clone()))

@@ -31,12 +31,25 @@ pub const STORE_DIR: &str = ".emend";
 /// The store file inside [`STORE_DIR`].
 pub const STORE_FILE: &str = "store.sqlite";
 /// The schema version this build writes and reads.
-pub const SCHEMA_VERSION: u32 = 1;
+pub const SCHEMA_VERSION: u32 = 2;
 /// SQLite `application_id` of emend stores ("emnd").
 const APPLICATION_ID: i64 = 0x656d_6e64;
 const SCHEMA: &str = include_str!("schema.sql");
-/// Migrations from version N to N+1, indexed by N-1. Empty until a second version ships.
-const MIGRATIONS: &[&str] = &[];
+/// Migrations from version N to N+1, indexed by N-1.
+const MIGRATIONS: &[&str] = &[
+    // 1 → 2: marks of kept values and notes (SQLite cannot change a CHECK in place).
+    "CREATE TABLE mark_v2 (
+        tbl     TEXT NOT NULL,
+        kind    TEXT NOT NULL CHECK (kind IN ('exclude', 'distrust', 'keep', 'note')),
+        target  TEXT NOT NULL,
+        seq     INTEGER NOT NULL REFERENCES commit_log(seq),
+        fix_idx INTEGER NOT NULL,
+        PRIMARY KEY (tbl, kind, target, seq, fix_idx)
+    ) STRICT, WITHOUT ROWID;
+    INSERT INTO mark_v2 SELECT tbl, kind, target, seq, fix_idx FROM mark;
+    DROP TABLE mark;
+    ALTER TABLE mark_v2 RENAME TO mark;",
+];
 /// How long a writer waits for another writer before giving up.
 const BUSY_WAIT: Duration = Duration::from_secs(10);
 
@@ -228,6 +241,53 @@ mod tests {
             matches!(err, Error::SchemaTooNew { found: 99, .. }),
             "{err}"
         );
+    }
+
+    #[test]
+    fn a_first_version_store_gains_marks_of_kept_values_and_notes() {
+        let dir = tempfile::tempdir().unwrap();
+        let store = Store::init(dir.path(), "2026-01-01T00:00:00Z").unwrap();
+        // The mark table as schema version 1 wrote it, with one exclusion in it.
+        store
+            .conn
+            .execute_batch(
+                "DROP TABLE mark;
+                 CREATE TABLE mark (
+                     tbl TEXT NOT NULL,
+                     kind TEXT NOT NULL CHECK (kind IN ('exclude', 'distrust')),
+                     target TEXT NOT NULL,
+                     seq INTEGER NOT NULL REFERENCES commit_log(seq),
+                     fix_idx INTEGER NOT NULL,
+                     PRIMARY KEY (tbl, kind, target, seq, fix_idx)
+                 ) STRICT, WITHOUT ROWID;
+                 INSERT INTO commit_log (seq, id, body, signature) VALUES (1, x'00', x'00', x'00');
+                 INSERT INTO mark VALUES ('samples', 'exclude', 'S-1', 1, 0);
+                 PRAGMA user_version = 1;",
+            )
+            .unwrap();
+        drop(store);
+        let store = Store::discover(dir.path()).unwrap();
+        let version: u32 = store
+            .conn
+            .query_row("PRAGMA user_version", [], |r| r.get(0))
+            .unwrap();
+        assert_eq!(version, SCHEMA_VERSION);
+        let kept: i64 = store
+            .conn
+            .query_row(
+                "SELECT count(*) FROM mark WHERE kind = 'exclude'",
+                [],
+                |r| r.get(0),
+            )
+            .unwrap();
+        assert_eq!(kept, 1, "the migration keeps every mark");
+        store
+            .conn
+            .execute(
+                "INSERT INTO mark VALUES ('samples', 'keep', 'S-1', 1, 1)",
+                [],
+            )
+            .unwrap();
     }
 
     #[test]

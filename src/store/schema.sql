@@ -1,4 +1,4 @@
--- emend store schema, version 1 (PRAGMA user_version = 1).
+-- emend store schema, version 2 (PRAGMA user_version = 2).
 -- Objects (chunk, blob, blob_chunk, commit_log) are append-only: triggers refuse updates and
 -- deletes. Index tables (cell_edit, mark, version_index, extract_index) are derived from commit
 -- bodies inside the same transaction as the commit, and `verify` checks them against the bodies.
@@ -88,7 +88,7 @@ CREATE INDEX cell_edit_by_seq ON cell_edit (tbl, seq);
 -- Derived: row exclusions and column distrust.
 CREATE TABLE mark (
     tbl     TEXT NOT NULL,
-    kind    TEXT NOT NULL CHECK (kind IN ('exclude', 'distrust')),
+    kind    TEXT NOT NULL CHECK (kind IN ('exclude', 'distrust', 'keep', 'note')),
     target  TEXT NOT NULL,
     seq     INTEGER NOT NULL REFERENCES commit_log(seq),
     fix_idx INTEGER NOT NULL,

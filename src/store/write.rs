@@ -144,6 +144,11 @@ impl WriteTx<'_> {
         Ok(self.tx.execute("DELETE FROM pending", [])?)
     }
 
+    /// Drop one pending fix by its id; whether it was there.
+    pub fn drop_pending(&self, id: i64) -> Result<bool> {
+        Ok(self.tx.execute("DELETE FROM pending WHERE id = ?1", [id])? == 1)
+    }
+
     /// Trust a signer (no change when trusted already).
     pub fn trust_signer(
         &self,

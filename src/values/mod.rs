@@ -15,6 +15,7 @@
 
 pub mod date;
 pub mod number;
+pub mod transform;
 
 pub use date::{Date, DateForm, parse_date};
 pub use number::{Decimal, Number, is_integer, number_value, parse_number};

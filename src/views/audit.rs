@@ -232,6 +232,13 @@ pub fn report_view(
                             why: r.fix.why.clone(),
                             seq,
                         }),
+                        FixAction::ExcludeRows { resolved, .. } => {
+                            excluded.extend(resolved.iter().map(|row| MarkView {
+                                target: row.to_string(),
+                                why: r.fix.why.clone(),
+                                seq,
+                            }))
+                        }
                         FixAction::Distrust { column } => distrusted.push(MarkView {
                             target: column.clone(),
                             why: r.fix.why.clone(),

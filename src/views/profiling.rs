@@ -87,7 +87,8 @@ fn finding_rows(f: &Finding, outside: &[ValueRows]) -> Vec<u64> {
 struct KeyNames {
     keyed: bool,
     text: String,
-    ends: Vec<usize>,
+    /// Where each key ends in `text` (4 bytes a row; past 4 GiB of keys, naming stops).
+    ends: Vec<u32>,
 }
 
 impl KeyNames {
@@ -102,15 +103,22 @@ impl KeyNames {
     fn push(&mut self, key: &str) {
         if self.keyed {
             self.text.push_str(key);
-            self.ends.push(self.text.len());
+            match u32::try_from(self.text.len()) {
+                Ok(end) => self.ends.push(end),
+                Err(_) => {
+                    self.keyed = false;
+                    self.text = String::new();
+                    self.ends = Vec::new();
+                }
+            }
         }
     }
 
     /// The key of the `n`th row given (1-based).
     fn get(&self, n: u64) -> Option<String> {
         let i = (n as usize).checked_sub(1)?;
-        let end = *self.ends.get(i)?;
-        let start = if i == 0 { 0 } else { self.ends[i - 1] };
+        let end = *self.ends.get(i)? as usize;
+        let start = if i == 0 { 0 } else { self.ends[i - 1] as usize };
         Some(crate::model::RowId(self.text[start..end].to_owned()).to_string())
     }
 }

@@ -122,11 +122,29 @@ fn build_history() -> (TestDir, Vec<Model>) {
                         ("fine", "ok"),
                     ][rng.next(4) as usize];
                     dir.cmd([
-                        "recode", "sites", "site", "--from", from, "--to", to, "--why", &why,
+                        "recode",
+                        "sites",
+                        "site",
+                        "--from",
+                        from,
+                        "--to",
+                        to,
+                        "--why",
+                        &why,
+                        "--allow-empty",
                     ])
                     .ok();
                     dir.cmd([
-                        "recode", "sites", "note", "--from", from, "--to", to, "--why", &why,
+                        "recode",
+                        "sites",
+                        "note",
+                        "--from",
+                        from,
+                        "--to",
+                        to,
+                        "--why",
+                        &why,
+                        "--allow-empty",
                     ])
                     .ok();
                     for r in model.rows.keys().cloned().collect::<Vec<_>>() {
@@ -138,8 +156,17 @@ fn build_history() -> (TestDir, Vec<Model>) {
                     }
                 }
                 3 => {
-                    dir.cmd(["missing", "sites", "ph", "--code", "-99", "--why", &why])
-                        .ok();
+                    dir.cmd([
+                        "missing",
+                        "sites",
+                        "ph",
+                        "--code",
+                        "-99",
+                        "--why",
+                        &why,
+                        "--allow-empty",
+                    ])
+                    .ok();
                     for r in model.rows.keys().cloned().collect::<Vec<_>>() {
                         if model.rows[&r]["ph"].value.as_deref() == Some("-99") {
                             model.set(next_seq, &why, &r, "ph", None);

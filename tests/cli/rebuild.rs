@@ -79,7 +79,16 @@ impl Sim<'_> {
         if let [(from, to)] = pairs {
             self.dir
                 .cmd([
-                    "recode", "samples", col, "--from", from, "--to", to, "--why", "variant",
+                    "recode",
+                    "samples",
+                    col,
+                    "--from",
+                    from,
+                    "--to",
+                    to,
+                    "--why",
+                    "variant",
+                    "--allow-empty",
                 ])
                 .ok();
         } else {
@@ -95,7 +104,14 @@ impl Sim<'_> {
             self.dir.write(&name, &write_csv(&rows, ','));
             self.dir
                 .cmd([
-                    "recode", "samples", col, "--map", &name, "--why", "variants",
+                    "recode",
+                    "samples",
+                    col,
+                    "--map",
+                    &name,
+                    "--why",
+                    "variants",
+                    "--allow-empty",
                 ])
                 .ok();
         }
@@ -111,7 +127,15 @@ impl Sim<'_> {
 
     fn missing(&mut self, col: &str, codes: &[&str]) {
         // --why before --code: see bad_input::bug_missing_code_then_why_is_accepted.
-        let mut args = vec!["missing", "samples", col, "--why", "sentinel", "--code"];
+        let mut args = vec![
+            "missing",
+            "samples",
+            col,
+            "--why",
+            "sentinel",
+            "--allow-empty",
+            "--code",
+        ];
         args.extend_from_slice(codes);
         self.dir.cmd(&args).ok();
         let c = self.model.col(col);

@@ -88,8 +88,22 @@ fn a_fix_that_changes_nothing_is_recorded_with_a_note() {
     ])
     .ok()
     .says(&["already holds this value"]);
+    // A recode that matches no cell is a misspelt value until said otherwise.
     dir.cmd([
         "recode", "samples", "site", "--from", "Nowhere", "--to", "X", "--why", "w",
+    ])
+    .fails(&["changes no cell", "--allow-empty"]);
+    dir.cmd([
+        "recode",
+        "samples",
+        "site",
+        "--from",
+        "Nowhere",
+        "--to",
+        "X",
+        "--why",
+        "w",
+        "--allow-empty",
     ])
     .ok();
     dir.cmd(["commit", "-m", "no-ops"])

@@ -1,0 +1,310 @@
+//! The fix commands that choose rows and transform cells: `set` with `--rows` or `--where`,
+//! `tidy`, `replace`, `dates`, `exclude` with a choice of rows, `keep` and `note`. Each
+//! records one pending fix; the library tries it on the latest version first and says what it
+//! will change.
+
+use super::context::CliContext;
+use super::fixes::FixMeta;
+use super::out::{self, GOOD, paint};
+use anyhow::{Result, bail};
+use clap::{Args, ValueEnum};
+use emend::checks::parse_condition;
+use emend::ledger::{self, FixRequest};
+use emend::model::FixAction;
+use emend::model::edit::{DayOrder, LetterCase, Rows, Transform};
+use emend::query;
+use std::io::Write;
+
+/// How a fix chooses its rows.
+#[derive(Args, Debug, Clone, Default)]
+pub struct RowChoice {
+    /// These rows: keys, or #N for the row at position N, separated by commas (by
+    /// semicolons for a table with a composite key); may be repeated
+    #[arg(long, value_name = "ROWS", conflicts_with = "condition")]
+    pub rows: Vec<String>,
+    /// The rows where a condition holds, in the rules file's words: 'ph gt 14',
+    /// 'site in "Fox Run","Heron Pool" and notes is missing'
+    #[arg(long = "where", value_name = "CONDITION")]
+    pub condition: Option<String>,
+}
+
+impl RowChoice {
+    /// Whether any rows were chosen.
+    pub fn given(&self) -> bool {
+        !self.rows.is_empty() || self.condition.is_some()
+    }
+
+    /// The stored choice; every row when none is given and `all` is allowed.
+    pub fn resolve(&self, cx: &CliContext, table: &str, all: bool) -> Result<Rows> {
+        if let Some(text) = &self.condition {
+            let clauses =
+                parse_condition(text).map_err(|e| anyhow::anyhow!("--where '{text}': {e}"))?;
+            return Ok(Rows::Where(clauses));
+        }
+        if self.rows.is_empty() {
+            if all {
+                return Ok(Rows::Where(Vec::new()));
+            }
+            bail!("choose the rows: --rows KEY,KEY,… or --where 'COLUMN TEST VALUE'");
+        }
+        let store = cx.store()?;
+        let reader = store.read();
+        let composite = {
+            let probe = query::parse_row(&reader, table, "x,y")?;
+            probe.as_str().contains(emend::model::KEY_SEPARATOR)
+        };
+        let sep = if composite { ';' } else { ',' };
+        let texts: Vec<String> = self
+            .rows
+            .iter()
+            .flat_map(|r| r.split(sep))
+            .map(str::trim)
+            .filter(|t| !t.is_empty())
+            .map(str::to_owned)
+            .collect();
+        Ok(Rows::Listed(query::parse_rows(&reader, table, &texts)?))
+    }
+}
+
+/// Record `action` and say what it will change.
+pub fn record(
+    cx: &CliContext,
+    table: String,
+    action: FixAction,
+    meta: FixMeta,
+    allow_empty: bool,
+) -> Result<i32> {
+    let mut store = cx.store()?;
+    let now = cx.now()?;
+    let req = FixRequest {
+        table,
+        action,
+        why: meta.why,
+        evidence: meta.evidence,
+        consulted: meta.consulted,
+        allow_empty,
+    };
+    let recorded = ledger::record_fix(&mut store, req, &now)?;
+    let mut o = out::stdout();
+    writeln!(
+        o,
+        "{} {} (pending; 'emend commit -m ...' signs it)",
+        paint(GOOD, "recorded"),
+        recorded.fix.action.describe()
+    )?;
+    if let Some(p) = &recorded.preview {
+        let chooses = matches!(
+            recorded.fix.action,
+            FixAction::ExcludeRows { .. } | FixAction::Keep { .. } | FixAction::Note { .. }
+        );
+        let plural = |n: u64, one: &str, many: &str| {
+            if n == 1 {
+                format!("1 {one}")
+            } else {
+                format!("{n} {many}")
+            }
+        };
+        if chooses {
+            writeln!(
+                o,
+                "  chooses {} in the latest version",
+                plural(p.rows, "row", "rows")
+            )?;
+        } else {
+            writeln!(
+                o,
+                "  changes {} in {} of the latest version",
+                plural(p.cells, "cell", "cells"),
+                plural(p.rows, "chosen row", "chosen rows")
+            )?;
+        }
+        let show = |v: &Option<String>| match v {
+            Some(v) => format!("'{v}'"),
+            None => "missing".to_owned(),
+        };
+        for (row, old, new) in &p.samples {
+            writeln!(o, "    {row}: {} → {}", show(old), show(new))?;
+        }
+    }
+    if let Some(note) = recorded.note {
+        writeln!(o, "  note: {note}")?;
+    }
+    Ok(0)
+}
+
+/// Letter cases for `tidy --case`.
+#[derive(Clone, Copy, Debug, ValueEnum)]
+pub enum CaseArg {
+    /// all lower case
+    Lower,
+    /// ALL UPPER CASE
+    Upper,
+    /// Each Word Capitalised
+    Title,
+}
+
+#[derive(Args, Debug)]
+pub struct TidyArgs {
+    /// Table
+    table: String,
+    /// Column
+    column: String,
+    /// Drop leading and trailing spaces and make runs of spaces inside one space
+    #[arg(long, required_unless_present_any = ["final_stop", "case"], conflicts_with_all = ["final_stop", "case"])]
+    spaces: bool,
+    /// Drop a lone full stop at the end
+    #[arg(long, conflicts_with = "case")]
+    final_stop: bool,
+    /// Write the letters in one case
+    #[arg(long, value_enum, value_name = "CASE")]
+    case: Option<CaseArg>,
+    #[command(flatten)]
+    choice: RowChoice,
+    /// Record the fix even if it changes no cell now
+    #[arg(long)]
+    allow_empty: bool,
+    #[command(flatten)]
+    meta: FixMeta,
+}
+
+pub fn tidy(cx: &CliContext, a: TidyArgs) -> Result<i32> {
+    let transform = match (a.spaces, a.final_stop, a.case) {
+        (true, _, _) => Transform::Spaces,
+        (_, true, _) => Transform::FinalStop,
+        (_, _, Some(c)) => Transform::Case(match c {
+            CaseArg::Lower => LetterCase::Lower,
+            CaseArg::Upper => LetterCase::Upper,
+            CaseArg::Title => LetterCase::Title,
+        }),
+        _ => bail!("say how to tidy: --spaces, --final-stop or --case lower|upper|title"),
+    };
+    let rows = a.choice.resolve(cx, &a.table, true)?;
+    let action = FixAction::Edit {
+        column: a.column,
+        rows,
+        transform,
+    };
+    record(cx, a.table, action, a.meta, a.allow_empty)
+}
+
+#[derive(Args, Debug)]
+pub struct ReplaceArgs {
+    /// Table
+    table: String,
+    /// Column
+    column: String,
+    /// What to find: a regular expression (the `regex` crate's syntax)
+    #[arg(long, value_name = "PATTERN")]
+    pattern: String,
+    /// What to put in its place ($1 names the first group; empty to delete)
+    #[arg(long, value_name = "TEXT", allow_hyphen_values = true)]
+    with: String,
+    #[command(flatten)]
+    choice: RowChoice,
+    /// Record the fix even if it changes no cell now
+    #[arg(long)]
+    allow_empty: bool,
+    #[command(flatten)]
+    meta: FixMeta,
+}
+
+pub fn replace(cx: &CliContext, a: ReplaceArgs) -> Result<i32> {
+    if let Err(e) = regex::Regex::new(&a.pattern) {
+        bail!("--pattern '{}' does not compile: {e}", a.pattern);
+    }
+    let rows = a.choice.resolve(cx, &a.table, true)?;
+    let action = FixAction::Edit {
+        column: a.column,
+        rows,
+        transform: Transform::Replace {
+            pattern: a.pattern,
+            with: a.with,
+        },
+    };
+    record(cx, a.table, action, a.meta, a.allow_empty)
+}
+
+/// Date orders for `dates --from`.
+#[derive(Clone, Copy, Debug, ValueEnum)]
+pub enum OrderArg {
+    /// 13/01/2026
+    DayMonthYear,
+    /// 01/13/2026
+    MonthDayYear,
+}
+
+#[derive(Args, Debug)]
+pub struct DatesArgs {
+    /// Table
+    table: String,
+    /// Column
+    column: String,
+    /// The order the dates are written in; each becomes yyyy-mm-dd (ISO 8601)
+    #[arg(long, value_enum, value_name = "ORDER")]
+    from: OrderArg,
+    #[command(flatten)]
+    choice: RowChoice,
+    /// Record the fix even if it changes no cell now
+    #[arg(long)]
+    allow_empty: bool,
+    #[command(flatten)]
+    meta: FixMeta,
+}
+
+pub fn dates(cx: &CliContext, a: DatesArgs) -> Result<i32> {
+    let rows = a.choice.resolve(cx, &a.table, true)?;
+    let order = match a.from {
+        OrderArg::DayMonthYear => DayOrder::DayMonthYear,
+        OrderArg::MonthDayYear => DayOrder::MonthDayYear,
+    };
+    let action = FixAction::Edit {
+        column: a.column,
+        rows,
+        transform: Transform::Dates(order),
+    };
+    record(cx, a.table, action, a.meta, a.allow_empty)
+}
+
+#[derive(Args, Debug)]
+pub struct KeepArgs {
+    /// Table
+    table: String,
+    /// Column whose values are right as they are
+    column: String,
+    #[command(flatten)]
+    choice: RowChoice,
+    #[command(flatten)]
+    meta: FixMeta,
+}
+
+pub fn keep(cx: &CliContext, a: KeepArgs) -> Result<i32> {
+    let rows = a.choice.resolve(cx, &a.table, false)?;
+    let action = FixAction::Keep {
+        column: a.column,
+        rows,
+        resolved: Vec::new(),
+    };
+    record(cx, a.table, action, a.meta, false)
+}
+
+#[derive(Args, Debug)]
+pub struct NoteArgs {
+    /// Table
+    table: String,
+    /// Column the note is about (leave out for whole rows)
+    column: Option<String>,
+    #[command(flatten)]
+    choice: RowChoice,
+    #[command(flatten)]
+    meta: FixMeta,
+}
+
+pub fn note(cx: &CliContext, a: NoteArgs) -> Result<i32> {
+    let rows = a.choice.resolve(cx, &a.table, a.column.is_some())?;
+    let action = FixAction::Note {
+        column: a.column,
+        rows,
+        resolved: Vec::new(),
+    };
+    record(cx, a.table, action, a.meta, false)
+}
