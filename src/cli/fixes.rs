@@ -3,10 +3,9 @@
 
 use super::context::CliContext;
 use super::edits::{self, RowChoice};
-use super::out::{self, BOLD, DIM, GOOD, paint};
+use super::out::{BOLD, DIM, paint};
 use anyhow::{Context, Result, bail};
 use clap::Args;
-use emend::ledger::{self, FixRequest};
 use emend::model::edit::{Rows, Transform};
 use emend::model::{Fix, FixAction};
 use emend::query;

@@ -315,11 +315,7 @@ pub fn discard_one(store: &mut Store, n: usize) -> Result<Fix> {
 type Resolved = (Vec<Vec<CellEdit>>, Vec<Vec<RowId>>, TableVersion);
 
 /// Apply the pending fixes of one table to a version, row by row, recording each cell changed.
-fn resolve_fixes(
-    reader: &Reader<'_>,
-    version: &Version,
-    fixes: &[&Fix],
-) -> Result<Resolved> {
+fn resolve_fixes(reader: &Reader<'_>, version: &Version, fixes: &[&Fix]) -> Result<Resolved> {
     let header = version.header().to_vec();
     let mut appliers: Vec<FixApplier<'_>> = fixes
         .iter()
