@@ -13,7 +13,8 @@ use crate::profile::finding::{Decided, RowName};
 use crate::profile::{FindingDetail, TableOptions, TableProfile, TableProfiler};
 use crate::query::{Version, decode};
 use crate::store::Reader;
-use std::collections::BTreeMap;
+use crate::model::CELL_SEPARATOR;
+use std::collections::{BTreeMap, HashMap};
 use std::ops::ControlFlow;
 
 /// Missing-value codes declared for each column of `version`'s table by fixes up to it.
@@ -114,12 +115,18 @@ impl KeyNames {
         }
     }
 
-    /// The key of the `n`th row given (1-based).
-    fn get(&self, n: u64) -> Option<String> {
+    /// The key of the `n`th row given (1-based), as stored in a row id.
+    fn raw(&self, n: u64) -> Option<&str> {
         let i = (n as usize).checked_sub(1)?;
         let end = *self.ends.get(i)? as usize;
         let start = if i == 0 { 0 } else { self.ends[i - 1] as usize };
-        Some(crate::model::RowId(self.text[start..end].to_owned()).to_string())
+        Some(&self.text[start..end])
+    }
+
+    /// The key of the `n`th row given (1-based), as people write it.
+    fn get(&self, n: u64) -> Option<String> {
+        self.raw(n)
+            .map(|k| crate::model::RowId(k.to_owned()).to_string())
     }
 }
 
@@ -168,11 +175,45 @@ pub fn profile_version(
         .iter()
         .map(|c| (c.name.clone(), c.outside_rows.clone()))
         .collect();
+    // Values kept on purpose (`emend keep`): a finding about a column whose every named row
+    // holds a kept value of that column is answered.
+    let mut kept: HashMap<String, u64> = HashMap::new();
+    if !version.raw {
+        for m in reader.marks(&version.table, version.ingest_seq, version.seq)? {
+            if m.kind == "keep" {
+                kept.entry(m.target).or_insert(m.seq);
+            }
+        }
+    }
+    let row_id = |n: u64| -> String {
+        match keys.raw(n) {
+            Some(k) => k.to_owned(),
+            None => positions
+                .get((n as usize).wrapping_sub(1))
+                .copied()
+                .unwrap_or(n)
+                .to_string(),
+        }
+    };
     let named = |f: &mut Finding| {
-        f.rows = finding_rows(f, outside.get(&f.column).map_or(&[][..], Vec::as_slice))
-            .into_iter()
-            .map(name)
-            .collect();
+        let rows = finding_rows(f, outside.get(&f.column).map_or(&[][..], Vec::as_slice));
+        if !kept.is_empty() && !rows.is_empty() && !f.column.is_empty() {
+            let seqs: Option<Vec<u64>> = rows
+                .iter()
+                .map(|&n| {
+                    let target = format!("{}{}{}", row_id(n), CELL_SEPARATOR, f.column);
+                    kept.get(&target).copied()
+                })
+                .collect();
+            if let Some(seq) = seqs.and_then(|s| s.into_iter().max()) {
+                f.decided = Some(Decided {
+                    seq,
+                    how: "values kept on purpose".to_owned(),
+                });
+                f.suggestion = None;
+            }
+        }
+        f.rows = rows.into_iter().map(name).collect();
     };
     profile.findings.iter_mut().for_each(named);
     for c in &mut profile.columns {
