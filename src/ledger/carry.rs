@@ -345,13 +345,22 @@ pub fn carry(
             | FixAction::Note { rows, .. } => match rows {
                 // Listed rows follow their rows; rows gone are dropped from the fix.
                 Rows::Listed(list) => {
+                    // A row whose cell already holds the fixed value is left out: a
+                    // transform applied twice (a sign turned back) would undo the fix.
+                    let fixed: HashSet<&RowId> = cells
+                        .iter()
+                        .filter(|c| c.outcome == Outcome::FixedAtSource)
+                        .map(|c| &c.row)
+                        .collect();
                     let here: Vec<RowId> = list
                         .iter()
                         .filter_map(map_row)
-                        .filter(|r| rows_present(rows_seen, r))
+                        .filter(|r| rows_present(rows_seen, r) && !fixed.contains(r))
                         .collect();
                     if cells.iter().any(|c| c.outcome == Outcome::Conflict) {
                         Outcome::Conflict
+                    } else if here.is_empty() && !fixed.is_empty() {
+                        Outcome::FixedAtSource
                     } else if here.is_empty() {
                         Outcome::RowGone
                     } else {

@@ -6,6 +6,7 @@
 //! counted as declared missing. Row numbers in the result are 1-based positions in the extract.
 
 use crate::error::Result;
+use crate::model::CELL_SEPARATOR;
 use crate::model::{Change, FixAction};
 use crate::profile::Finding;
 use crate::profile::column::ValueRows;
@@ -13,7 +14,6 @@ use crate::profile::finding::{Decided, RowName};
 use crate::profile::{FindingDetail, TableOptions, TableProfile, TableProfiler};
 use crate::query::{Version, decode};
 use crate::store::Reader;
-use crate::model::CELL_SEPARATOR;
 use std::collections::{BTreeMap, HashMap};
 use std::ops::ControlFlow;
 

@@ -9,6 +9,7 @@ mod testdata;
 mod audit;
 mod bad_input;
 mod carry;
+mod decisions;
 mod demo;
 mod faults;
 mod findings;

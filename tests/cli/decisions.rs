@@ -1,0 +1,249 @@
+//! Issue 14: every decision in one command. Each fix kind that chooses rows or transforms
+//! cells goes through commit, `why`, `diff`, `export`, the report, `verify`, and `carry` onto
+//! a next extract. Data: a small invented river-monitoring extract (fictional sites and
+//! volunteers); expected values are worked by hand from the rows below.
+
+use crate::util::{TestDir, parse_csv, setup_store};
+
+const OCT: &str = "\
+sample_id,site,sampled_on,lon,ph,notes
+RW-01,Fox Run,13/01/2026,112.5,7.2,algae  
+RW-02,Heron  Pool,14/01/2026,-111.9,71,
+RW-03,Fox Run,15/01/2026,-112.0,6.8,clear
+RW-04,Fox Run,15/01/2026,-112.0,6.8,clear
+RW-05,Heron  Pool,16/01/2026,110.7,7.5,hot inflow
+";
+
+// November: RW-06 is a new row with the same sign error; RW-02 was fixed at source.
+const NOV: &str = "\
+sample_id,site,sampled_on,lon,ph,notes
+RW-01,Fox Run,13/01/2026,112.5,7.2,algae  
+RW-02,Heron  Pool,14/01/2026,-111.9,7.1,
+RW-03,Fox Run,15/01/2026,-112.0,6.8,clear
+RW-05,Heron  Pool,16/01/2026,110.7,7.5,hot inflow
+RW-06,Fox Run,17/01/2026,111.1,7.0,
+";
+
+fn column(csv: &str, name: &str) -> Vec<String> {
+    let rows = parse_csv(csv, ',');
+    let c = rows[0].iter().position(|h| h == name).unwrap();
+    rows[1..].iter().map(|r| r[c].clone()).collect()
+}
+
+#[test]
+fn each_decision_is_recorded_signed_traced_and_carried() {
+    let dir = TestDir::new("decisions");
+    setup_store(&dir);
+    dir.write("oct.csv", OCT);
+    dir.write("nov.csv", NOV);
+    dir.cmd(["ingest", "oct.csv", "--table", "s", "--key", "sample_id"])
+        .ok();
+
+    // A condition on one line, in the rules file's words; the effect is stated before commit.
+    dir.cmd([
+        "set",
+        "s",
+        "lon",
+        "--negate",
+        "--where",
+        "lon gt 0",
+        "--why",
+        "sign flipped by the app",
+    ])
+    .ok()
+    .says(&["changes 2 cells", "RW-01: '112.5' → '-112.5'"]);
+    dir.cmd([
+        "set",
+        "s",
+        "ph",
+        "--scale",
+        "-1",
+        "--rows",
+        "RW-02",
+        "--why",
+        "decimal slipped",
+    ])
+    .ok()
+    .says(&["'71' → '7.1'"]);
+    dir.cmd(["tidy", "s", "site", "--spaces", "--why", "doubled spaces"])
+        .ok()
+        .says(&["changes 2 cells"]);
+    dir.cmd([
+        "replace",
+        "s",
+        "notes",
+        "--pattern",
+        r"\s+$",
+        "--with",
+        "",
+        "--why",
+        "trailing blanks",
+    ])
+    .ok();
+    dir.cmd([
+        "dates",
+        "s",
+        "sampled_on",
+        "--from",
+        "day-month-year",
+        "--why",
+        "the app writes d/m/y",
+    ])
+    .ok()
+    .says(&["changes 5 cells"]);
+    dir.cmd([
+        "exclude",
+        "s",
+        "--duplicates",
+        "--why",
+        "same bottle logged twice",
+    ])
+    .ok()
+    .says(&["chooses 1 row"]);
+    dir.cmd([
+        "keep",
+        "s",
+        "notes",
+        "--rows",
+        "RW-05",
+        "--why",
+        "checked with the volunteer",
+    ])
+    .ok();
+    dir.cmd([
+        "note",
+        "s",
+        "ph",
+        "--rows",
+        "#2",
+        "--why",
+        "lab asked to re-run",
+    ])
+    .ok();
+    // A fix that would change nothing is refused until asked for; one pending fix can go.
+    dir.cmd([
+        "set",
+        "s",
+        "ph",
+        "--negate",
+        "--where",
+        "ph gt 100",
+        "--why",
+        "x",
+    ])
+    .fails(&["changes no cell", "--allow-empty"]);
+    dir.cmd(["tidy", "s", "site", "--case", "upper", "--why", "try"])
+        .ok();
+    dir.cmd(["discard", "9"])
+        .ok()
+        .says(&["dropped pending fix 9"]);
+    dir.cmd(["discard", "9"]).fails(&["no pending fix 9"]);
+    // Bad input names what and where.
+    dir.cmd([
+        "set",
+        "s",
+        "lon",
+        "--negate",
+        "--where",
+        "lon above 0",
+        "--why",
+        "x",
+    ])
+    .fails(&["at character 5", "eq, ne, lt"]);
+    dir.cmd([
+        "set", "s", "lon", "--negate", "--where", "lat gt 0", "--why", "x",
+    ])
+    .fails(&["no column 'lat'"]);
+    dir.cmd([
+        "replace",
+        "s",
+        "notes",
+        "--pattern",
+        "(",
+        "--with",
+        "",
+        "--why",
+        "x",
+    ])
+    .fails(&["does not compile"]);
+    dir.cmd([
+        "set", "s", "site", "--negate", "--rows", "RW-01", "--why", "x",
+    ])
+    .fails(&["row RW-01 site: not a plain decimal number"]);
+    dir.cmd(["keep", "s", "notes", "--rows", "RW-99", "--why", "x"])
+        .fails(&["RW-99"]);
+
+    dir.cmd(["commit", "-m", "October pass"]).ok();
+    dir.cmd(["verify"]).ok().says(&["intact"]);
+
+    let csv = dir.cmd(["export", "s"]).ok().stdout();
+    assert_eq!(
+        column(&csv, "sample_id"),
+        ["RW-01", "RW-02", "RW-03", "RW-05"]
+    );
+    assert_eq!(
+        column(&csv, "lon"),
+        ["-112.5", "-111.9", "-112.0", "-110.7"]
+    );
+    assert_eq!(column(&csv, "ph"), ["7.2", "7.1", "6.8", "7.5"]);
+    assert_eq!(
+        column(&csv, "site"),
+        ["Fox Run", "Heron Pool", "Fox Run", "Heron Pool"]
+    );
+    assert_eq!(column(&csv, "notes"), ["algae", "", "clear", "hot inflow"]);
+    assert_eq!(
+        column(&csv, "sampled_on"),
+        ["2026-01-13", "2026-01-14", "2026-01-15", "2026-01-16"]
+    );
+
+    // why: the transform's cell, the value kept on purpose, the note.
+    dir.cmd(["why", "s", "RW-01", "lon"])
+        .ok()
+        .says(&["112.5 → -112.5", "sign flipped by the app"]);
+    dir.cmd(["why", "s", "RW-05", "notes"])
+        .ok()
+        .says(&["kept on purpose", "checked with the volunteer"]);
+    dir.cmd(["why", "s", "RW-02", "ph"]).ok().says(&[
+        "7.1",
+        "a note for review",
+        "lab asked to re-run",
+    ]);
+    let diff = dir
+        .cmd(["diff", "s", "raw", "latest", "--json"])
+        .ok()
+        .json();
+    let text = diff.to_string();
+    assert!(
+        text.contains("RW-04"),
+        "the excluded copy is in the diff: {text}"
+    );
+    dir.cmd(["report", "s", "-o", "report.html"]).ok();
+    let report = String::from_utf8(dir.read("report.html")).unwrap();
+    assert!(report.contains("same bottle logged twice"));
+    assert!(report.contains("RW-04"));
+
+    // November: the condition finds the new row; the listed scale meets a value fixed at
+    // source; the duplicate search finds none now.
+    dir.cmd(["ingest", "nov.csv", "--table", "s", "-m", "November"])
+        .ok();
+    let carried = dir.cmd(["carry", "s", "--json"]).ok().json();
+    let fixes = carried["fixes"].as_array().unwrap();
+    let outcome = |needle: &str| {
+        fixes
+            .iter()
+            .find(|f| f["description"].as_str().unwrap().contains(needle))
+            .unwrap_or_else(|| panic!("{needle}: {carried:#}"))["outcome"]
+            .clone()
+    };
+    assert_eq!(outcome("sign turned"), "applied");
+    assert_eq!(outcome("times 10^-1"), "fixed at source");
+    assert_eq!(outcome("repeat an earlier row"), "fixed at source");
+    dir.cmd(["commit", "-m", "November carried"]).ok();
+    let csv = dir.cmd(["export", "s"]).ok().stdout();
+    assert_eq!(
+        column(&csv, "lon"),
+        ["-112.5", "-111.9", "-112.0", "-110.7", "-111.1"]
+    );
+    assert_eq!(column(&csv, "sampled_on")[4], "2026-01-17");
+    dir.cmd(["verify"]).ok().says(&["intact"]);
+}
