@@ -245,3 +245,38 @@ pub fn report(cx: &CliContext, a: ReportArgs) -> Result<i32> {
     )?;
     Ok(0)
 }
+
+#[derive(clap::Args, Debug)]
+pub struct EvidenceArgs {
+    /// The first hex digits (6 or more) of the file's hash, as 'emend why' shows it
+    hash: String,
+    /// Write the file here (default: standard output)
+    #[arg(short = 'o', long = "output", value_name = "FILE")]
+    output: Option<PathBuf>,
+}
+
+/// Writes a stored evidence file back out, checked against its hash.
+pub fn evidence(cx: &CliContext, a: EvidenceArgs) -> Result<i32> {
+    let store = cx.store()?;
+    let reader = store.read();
+    let e = emend::views::export::find_evidence(&reader, &a.hash)?;
+    match &a.output {
+        Some(path) => {
+            let mut f = AtomicFile::create(path)?;
+            let n = emend::views::export::export_blob_checked(&reader, &e.blob, &mut f)?;
+            f.finish()?;
+            eprintln!(
+                "wrote {} ({n} bytes, {}) to {}; its hash checks out",
+                e.name,
+                e.blob.short(),
+                path.display()
+            );
+        }
+        None => {
+            let stdout = std::io::stdout();
+            let mut lock = stdout.lock();
+            emend::views::export::export_blob_checked(&reader, &e.blob, &mut lock)?;
+        }
+    }
+    Ok(0)
+}

@@ -110,6 +110,8 @@ enum Command {
     Tags(JsonFlag),
     /// Write a table version as CSV (or the raw extract bytes)
     Export(export::ExportArgs),
+    /// Write a stored evidence file back out, checked against its hash
+    Evidence(export::EvidenceArgs),
     /// Write one self-contained HTML report of a version for an auditor
     Report(export::ReportArgs),
     /// Vouch for another signing key in a signed commit (key rotation, a new colleague)
@@ -204,6 +206,7 @@ fn run(cli: Cli) -> Result<i32> {
         Command::Verify(a) => verify::verify(cx, a),
         Command::Trust(a) => trust::trust_key(cx, a),
         Command::Report(a) => export::report(cx, a),
+        Command::Evidence(a) => export::evidence(cx, a),
         Command::Demo(a) => demo::run(cx, a),
     }
 }

@@ -86,6 +86,67 @@ pub fn export_version(
     })
 }
 
+/// A stored evidence file found by the first hex digits of its BLAKE3 hash (at least 6),
+/// among the files attached to committed and pending fixes.
+pub fn find_evidence(reader: &Reader<'_>, prefix: &str) -> Result<crate::model::Evidence> {
+    let prefix = prefix.trim().to_ascii_lowercase();
+    if prefix.len() < 6 || !prefix.bytes().all(|b| b.is_ascii_hexdigit()) {
+        return Err(Error::Invalid(format!(
+            "'{prefix}' is not a file hash: give at least 6 hex digits, as 'emend why' or 'emend status' shows them"
+        )));
+    }
+    let mut found: Vec<crate::model::Evidence> = Vec::new();
+    let mut add = |e: &crate::model::Evidence| {
+        if e.blob.to_hex().starts_with(&prefix) && !found.iter().any(|f| f.blob == e.blob) {
+            found.push(e.clone());
+        }
+    };
+    for (_, body) in crate::query::log(reader)? {
+        if let crate::model::Change::Fixes(list) = &body.change {
+            list.iter().flat_map(|r| &r.fix.evidence).for_each(&mut add);
+        }
+    }
+    for p in reader.pending()? {
+        p.fix.evidence.iter().for_each(&mut add);
+    }
+    match found.len() {
+        1 => Ok(found.remove(0)),
+        0 => Err(Error::Invalid(format!(
+            "no evidence file's hash starts with {prefix}"
+        ))),
+        n => Err(Error::Invalid(format!(
+            "{n} evidence files' hashes start with {prefix}: give more digits"
+        ))),
+    }
+}
+
+/// Writes a stored file, checking its bytes against its BLAKE3 hash as they stream: on a
+/// mismatch the error says so (the output then holds bytes that must not be used).
+pub fn export_blob_checked(reader: &Reader<'_>, id: &BlobId, out: &mut dyn Write) -> Result<u64> {
+    let mut blob = reader.open_blob(id)?;
+    let mut hasher = blake3::Hasher::new();
+    let mut buf = vec![0u8; 64 * 1024];
+    let mut n = 0u64;
+    loop {
+        let k = std::io::Read::read(&mut blob, &mut buf).map_err(|e| Error::io("<store>", e))?;
+        if k == 0 {
+            break;
+        }
+        hasher.update(&buf[..k]);
+        out.write_all(&buf[..k])
+            .map_err(|e| Error::io("<output>", e))?;
+        n += k as u64;
+    }
+    if hasher.finalize().as_bytes() != id.as_bytes() {
+        return Err(Error::Corrupt(format!(
+            "stored file {} does not match its hash; run 'emend verify'",
+            id.short()
+        )));
+    }
+    out.flush().map_err(|e| Error::io("<output>", e))?;
+    Ok(n)
+}
+
 /// Copy a stored extract's bytes unchanged. Returns the byte count.
 pub fn export_raw(reader: &Reader<'_>, extract: &BlobId, out: &mut dyn Write) -> Result<u64> {
     let mut blob = reader.open_blob(extract)?;
