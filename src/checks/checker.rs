@@ -531,7 +531,7 @@ impl<'r> Checker<'r> {
 
 /// The trimmed value of a cell, or `None` when it is missing: absent, blank, or one of the
 /// column's missing-value codes.
-fn present<'c>(raw: Option<&'c str>, missing_codes: &[String]) -> Option<&'c str> {
+pub(crate) fn present<'c>(raw: Option<&'c str>, missing_codes: &[String]) -> Option<&'c str> {
     let value = raw?.trim();
     (!value.is_empty() && !missing_codes.iter().any(|code| code == value)).then_some(value)
 }
@@ -555,7 +555,7 @@ fn ratio(part: u64, whole: u64) -> f64 {
 
 /// Why `value` breaks `bounds`, or `None` when it keeps them (or is not a number or date:
 /// the type rule reports those).
-fn out_of_bounds(bounds: &Bounds, value: &str, word: &str) -> Option<String> {
+pub(crate) fn out_of_bounds(bounds: &Bounds, value: &str, word: &str) -> Option<String> {
     match *bounds {
         Bounds::Number { min, max } => {
             let x = parse_number(value)?;

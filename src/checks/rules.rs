@@ -145,6 +145,48 @@ pub(crate) struct FlagThresholds {
 }
 
 impl RuleSet {
+    /// The first per-column rule a value would break if written into `column`: its declared
+    /// type, its levels, its pattern or its hard bounds (soft bounds only warn, so they do not
+    /// refuse). Returns the rule id (`ph.type`) and what is wrong. A missing-value code of the
+    /// column and a missing value break nothing.
+    ///
+    /// ```
+    /// use emend::checks::RuleSet;
+    /// let rules = RuleSet::parse("[columns.ph]\ntype = \"decimal\"\nhard = { min = 0, max = 14 }\n").unwrap();
+    /// assert_eq!(rules.breaks("ph", "abc").unwrap().0, "ph.type");
+    /// assert_eq!(rules.breaks("ph", "71").unwrap().0, "ph.hard");
+    /// assert!(rules.breaks("ph", "7.1").is_none());
+    /// ```
+    pub fn breaks(&self, column: &str, value: &str) -> Option<(String, String)> {
+        let c = self.columns.iter().find(|c| c.column.name == column)?;
+        let value = super::checker::present(Some(value), &c.missing_codes)?;
+        let id = |kind: &str| format!("{column}.{kind}");
+        if let Some(t) = &c.value_type
+            && !t.value.accepts(value)
+        {
+            return Some((id("type"), format!("{value:?} is not {}", t.value.phrase())));
+        }
+        if let Some(levels) = &c.levels
+            && !levels.value.iter().any(|l| l == value)
+        {
+            return Some((id("levels"), format!("{value:?} is not an allowed level")));
+        }
+        if let Some(p) = &c.pattern
+            && !p.value.regex.is_match(value)
+        {
+            return Some((
+                id("pattern"),
+                format!("{value:?} does not match {}", p.value.source),
+            ));
+        }
+        if let Some(b) = &c.hard
+            && let Some(message) = super::checker::out_of_bounds(&b.value, value, "hard")
+        {
+            return Some((id("hard"), message));
+        }
+        None
+    }
+
     /// Parses and checks a rules file.
     ///
     /// # Errors

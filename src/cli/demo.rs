@@ -68,6 +68,7 @@ fn fix(store: &mut Store, now: &str, step: Step<'_>) -> Result<()> {
             evidence: step.evidence,
             consulted: step.consulted.map(String::from),
             allow_empty: false,
+            despite: None,
         },
         now,
     )?;

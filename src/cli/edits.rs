@@ -83,6 +83,7 @@ pub fn record(
         evidence: meta.evidence,
         consulted: meta.consulted,
         allow_empty,
+        despite: meta.despite,
     };
     let recorded = ledger::record_fix(&mut store, req, &now)?;
     let mut o = out::stdout();

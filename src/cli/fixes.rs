@@ -24,6 +24,10 @@ pub struct FixMeta {
     /// Who was consulted about it
     #[arg(long, value_name = "WHO")]
     pub consulted: Option<String>,
+    /// A rule of the rules in force the new values break on purpose (for example ph.hard);
+    /// the recorded reason names it
+    #[arg(long, value_name = "RULE")]
+    pub despite: Option<String>,
 }
 
 #[derive(Args, Debug)]

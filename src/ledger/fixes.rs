@@ -30,6 +30,9 @@ pub struct FixRequest {
     pub consulted: Option<String>,
     /// Record the fix even when it changes (or chooses) nothing in the latest version.
     pub allow_empty: bool,
+    /// A rule of the rules in force that the new values may break on purpose (`ph.hard`);
+    /// named in the recorded reason.
+    pub despite: Option<String>,
 }
 
 /// What a fix would do to the latest version, found in one pass when it is recorded.
@@ -46,8 +49,18 @@ pub struct Preview {
 /// Changes listed in a [`Preview`].
 pub const PREVIEW_SAMPLES: usize = 3;
 
-/// One pass over `version` applying `fix` alone: what it would change, or why it cannot.
-fn preview(reader: &Reader<'_>, version: &Version, fix: &Fix) -> Result<Preview> {
+/// A new value that breaks a rule in force: the row, the rule id and what is wrong.
+type Broken = (RowId, String, String);
+
+/// One pass over `version` applying `fix` alone: what it would change, or why it cannot,
+/// and the first new value that breaks one of `rules` (when given).
+fn preview(
+    reader: &Reader<'_>,
+    version: &Version,
+    fix: &Fix,
+    rules: Option<&crate::checks::RuleSet>,
+) -> Result<(Preview, Option<Broken>)> {
+    let mut broken: Option<Broken> = None;
     let header = version.header().to_vec();
     let mut a = FixApplier::new(fix, &header)?;
     let mut out = Preview::default();
@@ -60,7 +73,13 @@ fn preview(reader: &Reader<'_>, version: &Version, fix: &Fix) -> Result<Preview>
         cells.extend_from_slice(row.cells);
         let mut excluded = false;
         let before = a.chosen().len();
-        a.apply(row.id, &mut cells, &mut excluded, |_, old, new| {
+        a.apply(row.id, &mut cells, &mut excluded, |col, old, new| {
+            if broken.is_none()
+                && let (Some(rules), Some(v)) = (rules, new.as_deref())
+                && let Some((id, why)) = rules.breaks(&header[col], v)
+            {
+                broken = Some((row.id.clone(), id, why));
+            }
             out.cells += 1;
             if out.samples.len() < PREVIEW_SAMPLES {
                 out.samples.push((row.id.clone(), old, new));
@@ -81,7 +100,7 @@ fn preview(reader: &Reader<'_>, version: &Version, fix: &Fix) -> Result<Preview>
             "row {row} {column}: {e}; choose the rows it fits with --rows or --where"
         )));
     }
-    Ok(out)
+    Ok((out, broken))
 }
 
 /// A fix that was recorded as pending.
@@ -187,6 +206,25 @@ pub fn record_fix(store: &mut Store, mut req: FixRequest, now: &str) -> Result<R
     // Fixes that act on many cells are tried on the latest version first (one pass): a fix
     // that would change nothing is refused unless asked for, so a misspelt value or a
     // condition that matches no row is caught before it is signed.
+    // The rules in force: a new value that breaks the column's type, levels, pattern or hard
+    // bounds is refused unless that rule is named with --despite.
+    let rules = match crate::query::rules_at(&reader, &req.table, head)? {
+        Some((_, _, text)) => crate::checks::RuleSet::parse(&text).ok(),
+        None => None,
+    };
+    let mut broken: Option<Broken> = None;
+    if let (
+        Some(r),
+        FixAction::Set {
+            row,
+            column,
+            value: Some(v),
+        },
+    ) = (&rules, &req.action)
+        && let Some((id, why)) = r.breaks(column, v)
+    {
+        broken = Some((row.clone(), id, why));
+    }
     let mut shown = None;
     let tried = !matches!(
         req.action,
@@ -201,7 +239,8 @@ pub fn record_fix(store: &mut Store, mut req: FixRequest, now: &str) -> Result<R
             consulted: None,
             origins: Vec::new(),
         };
-        let p = preview(&reader, &version, &probe)?;
+        let (p, b) = preview(&reader, &version, &probe, rules.as_ref())?;
+        broken = broken.or(b);
         let chooses = matches!(
             req.action,
             FixAction::ExcludeRows { .. } | FixAction::Keep { .. } | FixAction::Note { .. }
@@ -221,6 +260,36 @@ pub fn record_fix(store: &mut Store, mut req: FixRequest, now: &str) -> Result<R
         }
         shown = Some(p);
     }
+    let mut why = req.why.trim().to_string();
+    if let Some((row, id, problem)) = broken {
+        if req.despite.as_deref() != Some(id.as_str()) {
+            return Err(Error::Invalid(format!(
+                "row {row}: {problem}, which breaks rule {id} of the rules in force; give --despite {id} to record it anyway (the reason then names the rule)"
+            )));
+        }
+        why = format!("{why} [despite rule {id}]");
+    } else if let Some(d) = &req.despite {
+        return Err(Error::Invalid(format!(
+            "--despite {d}: no new value of this fix breaks that rule; leave --despite out"
+        )));
+    }
+    // A fix on a distrusted column or an excluded row is allowed, and said.
+    let mut remarks: Vec<String> = note.into_iter().collect();
+    if let Some(col) = req.action.column()
+        && let Ok(i) = version.col_idx(col)
+        && version.distrusted()[i]
+        && !matches!(req.action, FixAction::Distrust { .. })
+    {
+        remarks.push(format!(
+            "column {col} is distrusted: export leaves it out unless --with-distrusted"
+        ));
+    }
+    if let FixAction::Set { row, .. } = &req.action
+        && version.is_excluded(row)
+    {
+        remarks.push(format!("row {row} is excluded: export leaves it out"));
+    }
+    let note = (!remarks.is_empty()).then(|| remarks.join("; "));
     let mut evidence = Vec::new();
     for path in &req.evidence {
         let (blob, n_bytes) = store_file(&tx, path)?;
@@ -236,7 +305,7 @@ pub fn record_fix(store: &mut Store, mut req: FixRequest, now: &str) -> Result<R
     let fix = Fix {
         table: req.table,
         action: req.action,
-        why: req.why.trim().to_string(),
+        why,
         evidence,
         consulted: req.consulted.filter(|c| !c.trim().is_empty()),
         origins: Vec::new(),
@@ -494,6 +563,7 @@ mod tests {
             evidence: Vec::new(),
             consulted: None,
             allow_empty: false,
+            despite: None,
         };
         let key = record_fix(
             &mut kit.store,

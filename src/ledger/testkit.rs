@@ -64,6 +64,7 @@ impl Kit {
             evidence: Vec::new(),
             consulted: None,
             allow_empty: false,
+            despite: None,
         };
         record_fix(&mut self.store, req, NOW).expect("record fix");
     }

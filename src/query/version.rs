@@ -123,6 +123,11 @@ impl Version {
         &self.distrusted
     }
 
+    /// Whether a fix up to this version excluded the row.
+    pub fn is_excluded(&self, row: &RowId) -> bool {
+        self.excluded.contains(row.as_str())
+    }
+
     /// Whether a fix up to this version set the cell at (`row`, column index `col`).
     pub fn is_edited(&self, row: &RowId, col: usize) -> bool {
         self.edits

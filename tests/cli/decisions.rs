@@ -247,3 +247,52 @@ fn each_decision_is_recorded_signed_traced_and_carried() {
     assert_eq!(column(&csv, "sampled_on")[4], "2026-01-17");
     dir.cmd(["verify"]).ok().says(&["intact"]);
 }
+
+#[test]
+fn a_value_that_breaks_the_rules_in_force_needs_the_rule_named() {
+    let dir = TestDir::new("decisions_rules");
+    setup_store(&dir);
+    dir.write("oct.csv", OCT);
+    dir.write(
+        "rules.toml",
+        "[columns.ph]\ntype = \"decimal\"\nhard = { min = 0, max = 14 }\n",
+    );
+    dir.cmd(["ingest", "oct.csv", "--table", "s", "--key", "sample_id"])
+        .ok();
+    dir.cmd(["rules", "s", "rules.toml", "--why", "pH is 0 to 14"])
+        .ok();
+    dir.cmd(["set", "s", "RW-01", "ph", "abc", "--why", "x"])
+        .fails(&["breaks rule ph.type", "--despite ph.type"]);
+    dir.cmd([
+        "set", "s", "ph", "--scale", "1", "--rows", "RW-01", "--why", "x",
+    ])
+    .fails(&["72 is above the hard maximum 14", "ph.hard"]);
+    dir.cmd([
+        "set",
+        "s",
+        "RW-01",
+        "ph",
+        "15",
+        "--why",
+        "meter read twice",
+        "--despite",
+        "ph.hard",
+    ])
+    .ok();
+    dir.cmd([
+        "set",
+        "s",
+        "RW-03",
+        "ph",
+        "7",
+        "--why",
+        "x",
+        "--despite",
+        "ph.hard",
+    ])
+    .fails(&["no new value of this fix breaks that rule"]);
+    dir.cmd(["commit", "-m", "kept against the rule"]).ok();
+    dir.cmd(["why", "s", "RW-01", "ph"])
+        .ok()
+        .says(&["meter read twice [despite rule ph.hard]"]);
+}
