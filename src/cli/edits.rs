@@ -111,6 +111,12 @@ pub fn record(
                 "  chooses {} in the latest version",
                 plural(p.rows, "row", "rows")
             )?;
+        } else if !matches!(recorded.fix.action, FixAction::Edit { .. }) {
+            writeln!(
+                o,
+                "  changes {} of the latest version",
+                plural(p.cells, "cell", "cells")
+            )?;
         } else {
             writeln!(
                 o,
@@ -308,4 +314,36 @@ pub fn note(cx: &CliContext, a: NoteArgs) -> Result<i32> {
         resolved: Vec::new(),
     };
     record(cx, a.table, action, a.meta, false)
+}
+
+#[derive(Args, Debug)]
+pub struct WithdrawArgs {
+    /// The fix to withdraw, as 'emend log' numbers it: COMMIT.FIX (for example 7.2)
+    fix: String,
+    #[command(flatten)]
+    meta: FixMeta,
+}
+
+/// Records the withdrawal of one committed fix (signed at the next commit; history keeps
+/// both).
+pub fn withdraw(cx: &CliContext, a: WithdrawArgs) -> Result<i32> {
+    let Some((seq, fix)) = a
+        .fix
+        .split_once('.')
+        .and_then(|(s, f)| Some((s.parse::<u64>().ok()?, f.parse::<u64>().ok()?)))
+    else {
+        bail!(
+            "'{}' does not name a fix: write COMMIT.FIX as 'emend log' numbers them, for example 7.2",
+            a.fix
+        );
+    };
+    let (table, original) = {
+        let store = cx.store()?;
+        let reader = store.read();
+        let r = ledger::committed_fix(&reader, seq, fix)?;
+        (r.fix.table, r.fix.action.describe())
+    };
+    let code = record(cx, table, FixAction::Withdraw { seq, fix }, a.meta, false)?;
+    writeln!(out::stdout(), "  withdraws: {original}")?;
+    Ok(code)
 }

@@ -414,6 +414,12 @@ pub fn fix_json(fix: &Fix, added_at: Option<&str>) -> serde_json::Value {
             obj.insert("rows".into(), rows.to_string().into());
             obj.insert("transform".into(), transform.to_string().into());
         }
+        FixAction::Withdraw { seq, fix } => {
+            obj.insert(
+                "withdraws".into(),
+                serde_json::json!({"seq": seq, "fix": fix}),
+            );
+        }
         FixAction::ExcludeRows { rows, resolved }
         | FixAction::Keep { rows, resolved, .. }
         | FixAction::Note { rows, resolved, .. } => {

@@ -92,6 +92,8 @@ enum Command {
     Check(check::CheckArgs),
     /// List the fixes waiting to be committed
     Status(JsonFlag),
+    /// Withdraw a committed fix (by COMMIT.FIX as 'emend log' numbers it) in a new commit
+    Withdraw(edits::WithdrawArgs),
     /// Drop one pending fix (by its number in 'emend status'), or every pending fix
     Discard(commit::DiscardArgs),
     /// Replay the fixes made on a table's previous extract onto its newest one
@@ -190,6 +192,7 @@ fn run(cli: Cli) -> Result<i32> {
         Command::Dates(a) => edits::dates(cx, a),
         Command::Keep(a) => edits::keep(cx, a),
         Command::Note(a) => edits::note(cx, a),
+        Command::Withdraw(a) => edits::withdraw(cx, a),
         Command::Distrust(a) => fixes::distrust(cx, a),
         Command::Status(f) => commit::status(cx, f.json),
         Command::Discard(a) => commit::discard(cx, a),

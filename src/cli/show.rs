@@ -376,10 +376,12 @@ pub fn log(cx: &CliContext, a: LogArgs) -> Result<i32> {
         writeln!(o, "    {}", b.message)?;
         writeln!(o, "    {}", paint(DIM, summary(b)))?;
         if let Change::Fixes(list) = &b.change {
-            for r in list {
+            for (i, r) in list.iter().enumerate() {
                 writeln!(
                     o,
-                    "      - {} — {} ({} cells)",
+                    "      {}.{} {} — {} ({} cells)",
+                    c.seq,
+                    i + 1,
                     r.fix.action.describe(),
                     r.fix.why,
                     r.edits.len()

@@ -9,6 +9,9 @@ use crate::model::{Fix, FixAction, RowId};
 use crate::values::transform::{Compiled, TransformError};
 use std::collections::{HashMap, HashSet};
 
+/// One cell a withdrawal puts back: column, the value before the fix, the value it set.
+type Reversal<'f> = (usize, &'f Option<String>, &'f Option<String>);
+
 /// How a fix that chooses rows finds them.
 #[derive(Debug)]
 enum Chooser<'f> {
@@ -46,6 +49,12 @@ pub struct FixApplier<'f> {
     chosen: Vec<RowId>,
     /// The first cell the transform could not change, and why.
     failed: Option<(RowId, TransformError)>,
+    /// For a withdrawal: per row, the cells the withdrawn fix changed (column, old, new).
+    reverse: HashMap<&'f RowId, Vec<Reversal<'f>>>,
+    /// For a withdrawal: cells that no longer hold the withdrawn fix's value (left as they are).
+    moved_on: u64,
+    /// For a withdrawal of an exclusion: the rows that come back.
+    included: HashSet<&'f RowId>,
 }
 
 fn listed(rows: &Rows) -> Option<&Vec<RowId>> {
@@ -133,7 +142,41 @@ impl<'f> FixApplier<'f> {
             met: HashSet::new(),
             chosen: Vec::new(),
             failed: None,
+            reverse: HashMap::new(),
+            moved_on: 0,
+            included: HashSet::new(),
         }
+    }
+
+    /// Prepares a withdrawal: `fix` withdraws `original`, whose cell edits it reverses.
+    pub fn reversing(
+        fix: &'f Fix,
+        original: &'f crate::model::FixRecord,
+        header: &[String],
+    ) -> FixApplier<'f> {
+        let mut a = FixApplier::with_column(fix, None);
+        for e in &original.edits {
+            if let Some(c) = header.iter().position(|h| *h == e.column) {
+                a.reverse
+                    .entry(&e.row)
+                    .or_default()
+                    .push((c, &e.old, &e.new));
+            }
+        }
+        match &original.fix.action {
+            FixAction::Exclude { row } => {
+                a.included.insert(row);
+            }
+            FixAction::ExcludeRows { resolved, .. } => a.included.extend(resolved.iter()),
+            _ => {}
+        }
+        a
+    }
+
+    /// For a withdrawal, after every row: cells that no longer held the withdrawn fix's value
+    /// (a later fix changed them) and were left as they are.
+    pub fn moved_on(&self) -> u64 {
+        self.moved_on
     }
 
     fn rows(&self) -> Option<&'f Rows> {
@@ -281,6 +324,20 @@ impl<'f> FixApplier<'f> {
             FixAction::Keep { .. } | FixAction::Note { .. } => {
                 if self.choose(id, cells) {
                     self.chosen.push(id.clone());
+                }
+            }
+            FixAction::Withdraw { .. } => {
+                if self.included.contains(id) {
+                    *excluded = false;
+                }
+                if let Some(list) = self.reverse.get(id) {
+                    for &(c, old, new) in list {
+                        if cells[c] == *new {
+                            put(c, old.clone(), cells);
+                        } else {
+                            self.moved_on += 1;
+                        }
+                    }
                 }
             }
             FixAction::Distrust { .. } | FixAction::Rules { .. } => {}

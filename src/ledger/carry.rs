@@ -167,6 +167,19 @@ pub fn carry(
         Error::Invalid(format!("table '{table}' had no extract at commit {upto}"))
     })?;
 
+    // Fixes withdrawn by `upto` are not carried, and neither are the withdrawals.
+    let mut withdrawn: HashSet<(u64, u64)> = HashSet::new();
+    for seq in prev_seq + 1..=upto {
+        if let Some(stored) = reader.try_commit(seq)?
+            && let Change::Fixes(list) = decode(&stored)?.change
+        {
+            for r in list {
+                if let FixAction::Withdraw { seq, fix } = r.fix.action {
+                    withdrawn.insert((seq, fix));
+                }
+            }
+        }
+    }
     // The fixes to carry, in order, with where they came from.
     let mut fixes: Vec<(Fix, Vec<crate::model::CellEdit>)> = Vec::new();
     for seq in prev_seq + 1..=upto {
@@ -176,7 +189,13 @@ pub fn carry(
         if let Change::Fixes(list) = decode(&stored)?.change {
             for (i, r) in list.into_iter().enumerate() {
                 // Rules are not carried: they apply to every later version until replaced.
-                if r.fix.table != table || matches!(r.fix.action, FixAction::Rules { .. }) {
+                if r.fix.table != table
+                    || matches!(
+                        r.fix.action,
+                        FixAction::Rules { .. } | FixAction::Withdraw { .. }
+                    )
+                    || withdrawn.contains(&(seq, i as u64 + 1))
+                {
                     continue;
                 }
                 let mut fix = r.fix;
@@ -338,7 +357,9 @@ pub fn carry(
                     Outcome::RowGone
                 }
             }
-            FixAction::Distrust { .. } | FixAction::Rules { .. } => Outcome::Applied,
+            FixAction::Distrust { .. } | FixAction::Rules { .. } | FixAction::Withdraw { .. } => {
+                Outcome::Applied
+            }
             FixAction::Edit { rows, .. }
             | FixAction::ExcludeRows { rows, .. }
             | FixAction::Keep { rows, .. }

@@ -49,6 +49,53 @@ pub struct Preview {
 /// Changes listed in a [`Preview`].
 pub const PREVIEW_SAMPLES: usize = 3;
 
+/// The committed fix that `seq`.`fix` (1-based) names.
+pub fn committed_fix(reader: &Reader<'_>, seq: u64, fix: u64) -> Result<FixRecord> {
+    let stored = reader.try_commit(seq)?.ok_or_else(|| {
+        Error::Invalid(format!("there is no commit {seq}; 'emend log' lists them"))
+    })?;
+    let Change::Fixes(list) = crate::query::decode(&stored)?.change else {
+        return Err(Error::Invalid(format!(
+            "commit {seq} records no fixes (it is an ingest, a tag or a trust); 'emend log' numbers the fixes as {seq}.1, {seq}.2, …"
+        )));
+    };
+    let n = list.len();
+    fix.checked_sub(1)
+        .and_then(|i| list.into_iter().nth(i as usize))
+        .ok_or_else(|| {
+            Error::Invalid(format!(
+                "commit {seq} holds {n} fixes; there is no fix {seq}.{fix}"
+            ))
+        })
+}
+
+/// Prepares each fix against a header, withdrawals with the fix they withdraw.
+fn appliers<'f>(
+    fixes: &[&'f Fix],
+    originals: &'f [Option<FixRecord>],
+    header: &[String],
+) -> Result<Vec<FixApplier<'f>>> {
+    fixes
+        .iter()
+        .zip(originals)
+        .map(|(f, o)| match o {
+            Some(original) => Ok(FixApplier::reversing(f, original, header)),
+            None => FixApplier::new(f, header),
+        })
+        .collect()
+}
+
+/// The fixes withdrawals name, loaded (None for other fixes).
+fn withdrawn(reader: &Reader<'_>, fixes: &[&Fix]) -> Result<Vec<Option<FixRecord>>> {
+    fixes
+        .iter()
+        .map(|f| match f.action {
+            FixAction::Withdraw { seq, fix } => committed_fix(reader, seq, fix).map(Some),
+            _ => Ok(None),
+        })
+        .collect()
+}
+
 /// A new value that breaks a rule in force: the row, the rule id and what is wrong.
 type Broken = (RowId, String, String);
 
@@ -62,7 +109,8 @@ fn preview(
 ) -> Result<(Preview, Option<Broken>)> {
     let mut broken: Option<Broken> = None;
     let header = version.header().to_vec();
-    let mut a = FixApplier::new(fix, &header)?;
+    let originals = withdrawn(reader, &[fix])?;
+    let mut a = appliers(&[fix], &originals, &header)?.remove(0);
     let mut out = Preview::default();
     let mut cells: Vec<Option<String>> = Vec::new();
     version.for_each_row(reader, |row| {
@@ -197,6 +245,39 @@ pub fn record_fix(store: &mut Store, mut req: FixRequest, now: &str) -> Result<R
         | FixAction::ExcludeRows { .. }
         | FixAction::Keep { .. }
         | FixAction::Note { .. } => {}
+        FixAction::Withdraw { seq, fix } => {
+            let original = committed_fix(&reader, *seq, *fix)?;
+            if original.fix.table != req.table {
+                return Err(Error::Invalid(format!(
+                    "fix {seq}.{fix} is a fix of table '{}', not '{}'",
+                    original.fix.table, req.table
+                )));
+            }
+            match original.fix.action {
+                FixAction::Rules { .. } => {
+                    return Err(Error::Invalid(format!(
+                        "fix {seq}.{fix} adopts a rules file; adopt another one with 'emend rules' instead"
+                    )));
+                }
+                FixAction::Withdraw { .. } => {
+                    return Err(Error::Invalid(format!(
+                        "fix {seq}.{fix} is itself a withdrawal; record the fix again instead"
+                    )));
+                }
+                _ => {}
+            }
+            let target = format!("{seq}.{fix}");
+            let done = !reader
+                .marks_of(&req.table, "withdraw", &target, 0, head)?
+                .is_empty();
+            let queued = reader.pending()?.iter().any(|p| p.fix.action == req.action);
+            if done || queued {
+                return Err(Error::Invalid(format!(
+                    "fix {seq}.{fix} is already withdrawn{}",
+                    if queued { " (pending)" } else { "" }
+                )));
+            }
+        }
         FixAction::Rules { .. } => {
             return Err(Error::Invalid(
                 "a rules file is adopted with 'emend rules TABLE FILE --why ...'".into(),
@@ -246,7 +327,8 @@ pub fn record_fix(store: &mut Store, mut req: FixRequest, now: &str) -> Result<R
             FixAction::ExcludeRows { .. } | FixAction::Keep { .. } | FixAction::Note { .. }
         );
         let nothing = if chooses { p.rows == 0 } else { p.cells == 0 };
-        if nothing && !req.allow_empty {
+        let withdrawal = matches!(req.action, FixAction::Withdraw { .. });
+        if nothing && !req.allow_empty && !withdrawal {
             return Err(Error::Invalid(format!(
                 "{} {} in the latest version of '{}'; check the values or the condition, or give --allow-empty to record it anyway",
                 req.action.describe(),
@@ -386,15 +468,19 @@ type Resolved = (Vec<Vec<CellEdit>>, Vec<Vec<RowId>>, TableVersion);
 /// Apply the pending fixes of one table to a version, row by row, recording each cell changed.
 fn resolve_fixes(reader: &Reader<'_>, version: &Version, fixes: &[&Fix]) -> Result<Resolved> {
     let header = version.header().to_vec();
-    let mut appliers: Vec<FixApplier<'_>> = fixes
-        .iter()
-        .map(|f| FixApplier::new(f, &header))
-        .collect::<Result<_>>()?;
+    let originals = withdrawn(reader, fixes)?;
+    let mut appliers: Vec<FixApplier<'_>> = appliers(fixes, &originals, &header)?;
     let mut edits: Vec<Vec<CellEdit>> = vec![Vec::new(); fixes.len()];
     let mut distrusted = version.distrusted().to_vec();
-    for a in &appliers {
+    for (a, original) in appliers.iter().zip(&originals) {
         if let (FixAction::Distrust { .. }, Some(c)) = (&a.fix().action, a.column()) {
             distrusted[c] = true;
+        }
+        // Withdrawing a distrust trusts the column again.
+        if let Some(FixAction::Distrust { column }) = original.as_ref().map(|o| &o.fix.action)
+            && let Some(c) = header.iter().position(|h| h == column)
+        {
+            distrusted[c] = false;
         }
     }
     let mut hash = VersionHashBuilder::new(&header);

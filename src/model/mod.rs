@@ -234,6 +234,14 @@ pub enum FixAction {
         /// The rows, filled when the fix is committed.
         resolved: Vec<RowId>,
     },
+    /// Reverse one committed fix: its cells go back to the values it replaced (where they
+    /// still hold its values), its exclusions, distrust, kept values and notes end.
+    Withdraw {
+        /// The commit that holds the fix.
+        seq: u64,
+        /// The fix's 1-based number in that commit (as `log` shows it, `7.2`).
+        fix: u64,
+    },
 }
 
 impl FixAction {
@@ -250,6 +258,7 @@ impl FixAction {
             FixAction::ExcludeRows { .. } => "exclude",
             FixAction::Keep { .. } => "keep",
             FixAction::Note { .. } => "note",
+            FixAction::Withdraw { .. } => "withdraw",
         }
     }
 
@@ -263,9 +272,10 @@ impl FixAction {
             | FixAction::Edit { column, .. }
             | FixAction::Keep { column, .. } => Some(column),
             FixAction::Note { column, .. } => column.as_deref(),
-            FixAction::Exclude { .. } | FixAction::Rules { .. } | FixAction::ExcludeRows { .. } => {
-                None
-            }
+            FixAction::Exclude { .. }
+            | FixAction::Rules { .. }
+            | FixAction::ExcludeRows { .. }
+            | FixAction::Withdraw { .. } => None,
         }
     }
 
@@ -323,6 +333,7 @@ impl FixAction {
                 Some(c) => format!("note on {c} in {rows}{}", counted(resolved)),
                 None => format!("note on {rows}{}", counted(resolved)),
             },
+            FixAction::Withdraw { seq, fix } => format!("withdraw fix {seq}.{fix}"),
         }
     }
 }

@@ -296,6 +296,40 @@ fn same_extract(reader: &Reader<'_>, table: &str, from: u64, to: u64, ingest: u6
         {
             continue;
         }
+        match m.kind.as_str() {
+            "exclude" | "distrust" => {}
+            "withdraw" => {
+                // A fix withdrawn here: its exclusions and distrust set before `lo` end.
+                let Some((s, f)) = m
+                    .target
+                    .split_once('.')
+                    .and_then(|(s, f)| Some((s.parse::<u64>().ok()?, f.parse::<u64>().ok()?)))
+                else {
+                    continue;
+                };
+                if s > lo || f == 0 {
+                    continue;
+                }
+                for ended in reader.marks(table, s - 1, s)? {
+                    if ended.seq != s || ended.fix_idx + 1 != f {
+                        continue;
+                    }
+                    let change = MarkChange {
+                        target: ended.target.clone(),
+                        set_in_to: reversed,
+                        by: fixes.get(m.seq, m.fix_idx)?,
+                    };
+                    match ended.kind.as_str() {
+                        "exclude" => out.rows_excluded.push(change),
+                        "distrust" => out.columns_distrusted.push(change),
+                        _ => {}
+                    }
+                }
+                continue;
+            }
+            // Kept values and notes change no value.
+            _ => continue,
+        }
         let change = MarkChange {
             target: m.target.clone(),
             set_in_to: !reversed,

@@ -121,6 +121,9 @@ impl IndexRows {
                         crate::model::FixAction::Distrust { column } => {
                             Some(("distrust", column.clone()))
                         }
+                        crate::model::FixAction::Withdraw { seq, fix } => {
+                            Some(("withdraw", format!("{seq}.{fix}")))
+                        }
                         _ => None,
                     };
                     if let Some((kind, target)) = mark {

@@ -37,10 +37,11 @@ const APPLICATION_ID: i64 = 0x656d_6e64;
 const SCHEMA: &str = include_str!("schema.sql");
 /// Migrations from version N to N+1, indexed by N-1.
 const MIGRATIONS: &[&str] = &[
-    // 1 → 2: marks of kept values and notes (SQLite cannot change a CHECK in place).
+    // 1 → 2: marks of kept values, notes and withdrawn fixes (SQLite cannot change a CHECK
+    // in place).
     "CREATE TABLE mark_v2 (
         tbl     TEXT NOT NULL,
-        kind    TEXT NOT NULL CHECK (kind IN ('exclude', 'distrust', 'keep', 'note')),
+        kind    TEXT NOT NULL CHECK (kind IN ('exclude', 'distrust', 'keep', 'note', 'withdraw')),
         target  TEXT NOT NULL,
         seq     INTEGER NOT NULL REFERENCES commit_log(seq),
         fix_idx INTEGER NOT NULL,

@@ -171,11 +171,15 @@ impl<'a> Reader<'a> {
         Ok(rows.collect::<rusqlite::Result<_>>()?)
     }
 
-    /// Marks of `table` with `after < seq <= upto`.
+    /// Marks of `table` with `after < seq <= upto`, leaving out the marks of fixes withdrawn
+    /// by `upto`.
     pub fn marks(&self, table: &str, after: u64, upto: u64) -> Result<Vec<MarkRow>> {
         let mut stmt = self.conn.prepare_cached(
             "SELECT kind, target, seq, fix_idx FROM mark
-             WHERE tbl = ?1 AND seq > ?2 AND seq <= ?3 ORDER BY seq, fix_idx",
+             WHERE tbl = ?1 AND seq > ?2 AND seq <= ?3 AND NOT EXISTS (
+                 SELECT 1 FROM mark w WHERE w.tbl = mark.tbl AND w.kind = 'withdraw'
+                 AND w.target = printf('%d.%d', mark.seq, mark.fix_idx + 1) AND w.seq <= ?3)
+             ORDER BY seq, fix_idx",
         )?;
         let rows = stmt.query_map(params![table, sq(after), sq(upto)], |r| {
             Ok(MarkRow {
@@ -322,7 +326,8 @@ impl<'a> Reader<'a> {
         Ok(rows.collect::<rusqlite::Result<_>>()?)
     }
 
-    /// Marks naming one target (a row id or a column) with `after < seq <= upto`.
+    /// Marks naming one target (a row id or a column) with `after < seq <= upto`, leaving out
+    /// the marks of fixes withdrawn by then.
     pub fn marks_of(
         &self,
         table: &str,
@@ -334,6 +339,9 @@ impl<'a> Reader<'a> {
         let mut stmt = self.conn.prepare_cached(
             "SELECT seq, fix_idx FROM mark
              WHERE tbl = ?1 AND kind = ?2 AND target = ?3 AND seq > ?4 AND seq <= ?5
+             AND NOT EXISTS (
+                 SELECT 1 FROM mark w WHERE w.tbl = mark.tbl AND w.kind = 'withdraw'
+                 AND w.target = printf('%d.%d', mark.seq, mark.fix_idx + 1) AND w.seq <= ?5)
              ORDER BY seq, fix_idx",
         )?;
         let rows = stmt.query_map(params![table, kind, target, sq(after), sq(upto)], |r| {

@@ -88,7 +88,7 @@ CREATE INDEX cell_edit_by_seq ON cell_edit (tbl, seq);
 -- Derived: row exclusions and column distrust.
 CREATE TABLE mark (
     tbl     TEXT NOT NULL,
-    kind    TEXT NOT NULL CHECK (kind IN ('exclude', 'distrust', 'keep', 'note')),
+    kind    TEXT NOT NULL CHECK (kind IN ('exclude', 'distrust', 'keep', 'note', 'withdraw')),
     target  TEXT NOT NULL,
     seq     INTEGER NOT NULL REFERENCES commit_log(seq),
     fix_idx INTEGER NOT NULL,

@@ -213,6 +213,19 @@ pub fn report_view(
     let mut excluded = Vec::new();
     let mut distrusted = Vec::new();
     let mut head = None;
+    // Fixes withdrawn by `upto`: their exclusions and distrust no longer hold.
+    let mut withdrawn: HashSet<(u64, u64)> = HashSet::new();
+    for seq in after.ingest_seq..=upto {
+        if let Some(stored) = reader.try_commit(seq)?
+            && let Change::Fixes(list) = decode(&stored)?.change
+        {
+            for r in list {
+                if let FixAction::Withdraw { seq, fix } = r.fix.action {
+                    withdrawn.insert((seq, fix));
+                }
+            }
+        }
+    }
     for seq in after.ingest_seq..=upto {
         let Some(stored) = reader.try_commit(seq)? else {
             continue;
@@ -224,9 +237,12 @@ pub fn report_view(
         let fixes: Vec<FixView> = match &body.change {
             Change::Fixes(list) => list
                 .iter()
-                .filter(|r| r.fix.table == table)
-                .map(|r| {
+                .enumerate()
+                .filter(|(_, r)| r.fix.table == table)
+                .map(|(i, r)| {
+                    let live = !withdrawn.contains(&(seq, i as u64 + 1));
                     match &r.fix.action {
+                        _ if !live => {}
                         FixAction::Exclude { row } => excluded.push(MarkView {
                             target: row.to_string(),
                             why: r.fix.why.clone(),

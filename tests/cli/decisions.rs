@@ -296,3 +296,56 @@ fn a_value_that_breaks_the_rules_in_force_needs_the_rule_named() {
         .ok()
         .says(&["meter read twice [despite rule ph.hard]"]);
 }
+
+#[test]
+fn a_withdrawn_fix_leaves_the_version_without_it() {
+    let dir = TestDir::new("decisions_withdraw");
+    setup_store(&dir);
+    dir.write("oct.csv", OCT);
+    dir.cmd(["ingest", "oct.csv", "--table", "s", "--key", "sample_id"])
+        .ok();
+    let raw = dir.cmd(["export", "s"]).ok().stdout();
+    dir.cmd([
+        "set", "s", "ph", "--scale", "-1", "--rows", "RW-02", "--why", "slipped",
+    ])
+    .ok();
+    dir.cmd(["exclude", "s", "RW-04", "--why", "copy"]).ok();
+    dir.cmd(["distrust", "s", "notes", "--why", "free text"])
+        .ok();
+    dir.cmd(["commit", "-m", "first pass"]).ok();
+    dir.cmd(["log"])
+        .ok()
+        .says(&["2.1 set ph", "2.2 exclude row RW-04", "2.3 distrust"]);
+    for (n, why) in [
+        ("2.1", "the expert corrected herself"),
+        ("2.2", "not a copy"),
+        ("2.3", "fine"),
+    ] {
+        dir.cmd(["withdraw", n, "--why", why])
+            .ok()
+            .says(&["withdraws:"]);
+    }
+    dir.cmd(["withdraw", "2.1", "--why", "again"])
+        .fails(&["already withdrawn (pending)"]);
+    dir.cmd(["withdraw", "1.1", "--why", "x"])
+        .fails(&["records no fixes"]);
+    dir.cmd(["withdraw", "seven", "--why", "x"])
+        .fails(&["COMMIT.FIX"]);
+    dir.cmd(["commit", "-m", "undo"]).ok();
+    // The version is the raw one again; history keeps both commits.
+    assert_eq!(
+        dir.cmd(["export", "s", "--with-distrusted"]).ok().stdout(),
+        raw
+    );
+    dir.cmd(["verify"]).ok().says(&["intact"]);
+    dir.cmd(["why", "s", "RW-02", "ph"]).ok().says(&[
+        "71 → 7.1",
+        "7.1 → 71",
+        "the expert corrected herself",
+    ]);
+    dir.cmd(["diff", "s", "2", "3"])
+        .ok()
+        .says(&["no longer excluded", "no longer distrusted"]);
+    dir.cmd(["withdraw", "2.1", "--why", "again"])
+        .fails(&["already withdrawn"]);
+}
