@@ -53,7 +53,8 @@ pub fn status(cx: &CliContext, json: bool) -> Result<i32> {
         "{} pending fixes (commit with 'emend commit -m \"...\"', drop with 'emend discard'):",
         pending.len()
     )?;
-    for p in &pending {
+    for (i, p) in pending.iter().enumerate() {
+        write!(o, "  {}. ", i + 1)?;
         super::fixes::print_fix(&mut o, &p.fix, "  ")?;
         if let Some(note) = &p.note {
             writeln!(o, "    {}", paint(DIM, note))?;

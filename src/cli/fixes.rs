@@ -328,7 +328,7 @@ pub fn distrust(cx: &CliContext, a: DistrustArgs) -> Result<i32> {
 pub fn print_fix(o: &mut dyn Write, fix: &Fix, indent: &str) -> Result<()> {
     writeln!(
         o,
-        "{indent}{} {}",
+        "{} {}",
         paint(BOLD, format!("{}:", fix.table)),
         fix.action.describe()
     )?;

@@ -392,7 +392,24 @@ pub fn record_fix(store: &mut Store, mut req: FixRequest, now: &str) -> Result<R
         consulted: req.consulted.filter(|c| !c.trim().is_empty()),
         origins: Vec::new(),
     };
-    tx.add_pending(&fix, None, now)?;
+    // `status` shows what the fix will do, as found when it was recorded.
+    let effect = shown.as_ref().map(|p| {
+        let show = |v: &Option<String>| match v {
+            Some(v) => format!("'{v}'"),
+            None => "missing".to_owned(),
+        };
+        let samples: Vec<String> = p
+            .samples
+            .iter()
+            .map(|(row, old, new)| format!("{row}: {} → {}", show(old), show(new)))
+            .collect();
+        let mut text = format!("when recorded: {} cells change, {} rows chosen", p.cells, p.rows);
+        if !samples.is_empty() {
+            text.push_str(&format!("; {}", samples.join(", ")));
+        }
+        text
+    });
+    tx.add_pending(&fix, effect.as_deref(), now)?;
     tx.commit()?;
     Ok(Recorded {
         fix,
