@@ -122,6 +122,10 @@ pub fn table(header: &[String], rows: &[Vec<(String, Option<Style>)>], max_width
 /// Show a cell value for people: missing is `<missing>`.
 pub fn cell(v: &Option<String>) -> String {
     match v {
+        // Spaces at either end are invisible in a table: quote such a value.
+        Some(s) if s.starts_with(char::is_whitespace) || s.ends_with(char::is_whitespace) => {
+            format!("'{s}'")
+        }
         Some(s) => s.clone(),
         None => "<missing>".into(),
     }

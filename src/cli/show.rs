@@ -15,6 +15,12 @@ use super::context::CliContext;
 pub struct ShowArgs {
     /// Table
     table: String,
+    /// One row: its key, or #N for the row at position N
+    #[arg(conflicts_with_all = ["rows", "condition"])]
+    row: Option<String>,
+    /// The rows where a condition holds ('ph gt 14'; the words of the rules file), at most 50
+    #[arg(long = "where", value_name = "CONDITION", conflicts_with = "rows")]
+    condition: Option<String>,
     /// Revision: commit number, 8+ hex digits of an id, 'latest' (default) or 'raw'
     #[arg(long, default_value = "latest", value_name = "REV")]
     at: String,
@@ -167,6 +173,49 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
     let rev = query::resolve(&reader, &a.at)?;
     let v = query::version_at(&reader, &a.table, rev)?;
     let (from, to) = parse_rows(&a.rows)?;
+    // Which rows: one by key or #N, those a condition picks, or a range of positions.
+    let one: Option<emend::model::RowId> = match &a.row {
+        Some(text) => {
+            Some(query::parse_rows(&reader, &a.table, std::slice::from_ref(text))?.remove(0))
+        }
+        None => None,
+    };
+    let condition = match &a.condition {
+        Some(text) => {
+            let clauses = emend::checks::parse_condition(text)
+                .map_err(|e| anyhow::anyhow!("--where '{text}': {e}"))?;
+            Some(
+                emend::checks::Condition::new(&clauses, v.header()).map_err(|column| {
+                    emend::Error::UnknownColumn {
+                        table: v.table.clone(),
+                        column,
+                    }
+                })?,
+            )
+        }
+        None => None,
+    };
+    const WHERE_LIMIT: usize = 50;
+    let mut matched = 0usize;
+    // Kept values and notes, to mark in the table.
+    let mut kept: std::collections::HashSet<String> = std::collections::HashSet::new();
+    let mut noted: std::collections::HashSet<String> = std::collections::HashSet::new();
+    if !v.raw {
+        for m in reader.marks(&v.table, v.ingest_seq, v.seq)? {
+            match m.kind.as_str() {
+                "keep" => {
+                    kept.insert(m.target);
+                }
+                "note" => {
+                    noted.insert(m.target);
+                }
+                _ => {}
+            }
+        }
+    }
+    let cell_key = |row: &emend::model::RowId, col: &str| {
+        format!("{}{}{col}", row.as_str(), emend::model::CELL_SEPARATOR)
+    };
     let cols: Vec<usize> = if a.cols.is_empty() {
         (0..v.header().len()).collect()
     } else {
@@ -177,11 +226,41 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
     };
     let mut picked = Vec::new();
     v.for_each_row(&reader, |row| {
-        if row.pos > to {
-            return Ok(ControlFlow::Break(()));
-        }
-        if row.pos >= from {
-            let edited: Vec<bool> = cols.iter().map(|&c| v.is_edited(row.id, c)).collect();
+        let take = match (&one, &condition) {
+            (Some(id), _) => row.id == id,
+            (None, Some(c)) => {
+                if c.holds(row.cells) {
+                    matched += 1;
+                    matched <= WHERE_LIMIT
+                } else {
+                    false
+                }
+            }
+            (None, None) => {
+                if row.pos > to {
+                    return Ok(ControlFlow::Break(()));
+                }
+                row.pos >= from
+            }
+        };
+        if take {
+            let edited: Vec<char> = cols
+                .iter()
+                .map(|&c| {
+                    let name = &v.header()[c];
+                    if v.is_edited(row.id, c) {
+                        '*'
+                    } else if kept.contains(&cell_key(row.id, name)) {
+                        '='
+                    } else if noted.contains(&cell_key(row.id, name))
+                        || noted.contains(row.id.as_str())
+                    {
+                        '!'
+                    } else {
+                        ' '
+                    }
+                })
+                .collect();
             picked.push((
                 row.pos,
                 row.id.clone(),
@@ -194,6 +273,13 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
         }
         Ok(ControlFlow::Continue(()))
     })?;
+    if let (Some(id), true) = (&one, picked.is_empty()) {
+        return Err(emend::Error::UnknownRow {
+            table: v.table.clone(),
+            row: id.to_string(),
+        }
+        .into());
+    }
     if a.json {
         let rows: Vec<serde_json::Value> = picked
             .iter()
@@ -209,13 +295,19 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
         return Ok(0);
     }
     let mut o = out::stdout();
+    let which = match (&one, &a.condition) {
+        (Some(id), _) => format!("row {id}"),
+        (None, Some(text)) if matched > WHERE_LIMIT => {
+            format!("the first {WHERE_LIMIT} of {matched} rows where {text}")
+        }
+        (None, Some(text)) => format!("{matched} rows where {text}"),
+        (None, None) => format!("rows {}-{}", from, to.min(v.def.n_rows)),
+    };
     writeln!(
         o,
-        "{} at {} — rows {}-{} of {}",
+        "{} at {} — {which} of {}",
         paint(BOLD, &v.table),
         rev_label(&rev),
-        from,
-        to.min(v.def.n_rows),
         v.def.n_rows
     )?;
     let mut header = vec!["#".to_string()];
@@ -237,15 +329,21 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
                 },
                 Some(DIM),
             )];
-            for (c, e) in cells.iter().zip(edited) {
+            for (c, mark) in cells.iter().zip(edited) {
                 let style = if *excluded || c.is_none() {
                     Some(DIM)
-                } else if *e {
+                } else if *mark == '*' {
                     Some(CHANGED)
                 } else {
                     None
                 };
-                r.push((out::cell(c), style));
+                // The mark is in the text too, not in colour alone.
+                let text = if *mark == ' ' {
+                    out::cell(c)
+                } else {
+                    format!("{}{mark}", out::cell(c))
+                };
+                r.push((text, style));
             }
             r
         })
@@ -253,6 +351,22 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
     write!(o, "{}", out::table(&header, &rows, 32))?;
     if picked.is_empty() {
         writeln!(o, "(no rows in that range)")?;
+    }
+    let used: std::collections::BTreeSet<char> = picked
+        .iter()
+        .flat_map(|(_, _, _, _, marks)| marks.iter().copied())
+        .filter(|m| *m != ' ')
+        .collect();
+    if !used.is_empty() {
+        let words: Vec<&str> = used
+            .iter()
+            .map(|m| match m {
+                '*' => "* set by a fix",
+                '=' => "= kept on purpose",
+                _ => "! noted for review",
+            })
+            .collect();
+        writeln!(o, "{}", paint(DIM, words.join("   ")))?;
     }
     Ok(0)
 }

@@ -403,7 +403,10 @@ pub fn record_fix(store: &mut Store, mut req: FixRequest, now: &str) -> Result<R
             .iter()
             .map(|(row, old, new)| format!("{row}: {} → {}", show(old), show(new)))
             .collect();
-        let mut text = format!("when recorded: {} cells change, {} rows chosen", p.cells, p.rows);
+        let mut text = format!(
+            "when recorded: {} cells change, {} rows chosen",
+            p.cells, p.rows
+        );
         if !samples.is_empty() {
             text.push_str(&format!("; {}", samples.join(", ")));
         }

@@ -349,3 +349,37 @@ fn a_withdrawn_fix_leaves_the_version_without_it() {
     dir.cmd(["withdraw", "2.1", "--why", "again"])
         .fails(&["already withdrawn"]);
 }
+
+#[test]
+fn show_finds_rows_by_key_position_and_condition_and_marks_decisions_in_text() {
+    let dir = TestDir::new("decisions_show");
+    setup_store(&dir);
+    dir.write("oct.csv", OCT);
+    dir.cmd(["ingest", "oct.csv", "--table", "s", "--key", "sample_id"])
+        .ok();
+    dir.cmd(["set", "s", "RW-02", "ph", "7.1", "--why", "lab sheet"])
+        .ok();
+    dir.cmd(["keep", "s", "lon", "--rows", "RW-05", "--why", "checked"])
+        .ok();
+    dir.cmd(["note", "s", "ph", "--rows", "RW-03", "--why", "re-run"])
+        .ok();
+    dir.cmd(["commit", "-m", "pass"]).ok();
+    dir.cmd(["show", "s", "RW-02", "--cols", "ph"]).ok().says(&[
+        "row RW-02",
+        "7.1*",
+        "* set by a fix",
+    ]);
+    dir.cmd(["show", "s", "#5", "--cols", "sample_id,lon"])
+        .ok()
+        .says(&["RW-05", "110.7=", "= kept on purpose"]);
+    dir.cmd(["show", "s", "--where", "ph lt 7", "--cols", "sample_id,ph"])
+        .ok()
+        .says(&["2 rows where ph lt 7", "6.8!", "! noted for review"]);
+    // Spaces at either end of a value are shown, quoted.
+    dir.cmd(["show", "s", "RW-01", "--cols", "notes"])
+        .ok()
+        .says(&["'algae  '"]);
+    dir.cmd(["show", "s", "RW-99"]).fails(&["RW-99"]);
+    dir.cmd(["show", "s", "--where", "depth gt 1"])
+        .fails(&["no column 'depth'"]);
+}
