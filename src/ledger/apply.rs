@@ -45,8 +45,10 @@ pub struct FixApplier<'f> {
     found: bool,
     /// Listed rows met so far.
     met: HashSet<&'f RowId>,
-    /// The rows chosen, in extract order.
+    /// The rows chosen, in extract order (for fixes that sign their rows).
     chosen: Vec<RowId>,
+    /// How many rows the fix chose.
+    n_chosen: u64,
     /// The first cell the transform could not change, and why.
     failed: Option<(RowId, TransformError)>,
     /// For a withdrawal: per row, the cells the withdrawn fix changed (column, old, new).
@@ -141,6 +143,7 @@ impl<'f> FixApplier<'f> {
             found: false,
             met: HashSet::new(),
             chosen: Vec::new(),
+            n_chosen: 0,
             failed: None,
             reverse: HashMap::new(),
             moved_on: 0,
@@ -303,7 +306,8 @@ impl<'f> FixApplier<'f> {
             FixAction::Edit { .. } => {
                 let Some(c) = self.col else { return };
                 if self.choose(id, cells) {
-                    self.chosen.push(id.clone());
+                    // An edit signs its cells, not its rows: count them only.
+                    self.n_chosen += 1;
                     let t = self.transform.as_ref().expect("an edit has its transform");
                     match t.apply(cells[c].as_deref()) {
                         Ok(new) => put(c, new, cells),
@@ -318,12 +322,14 @@ impl<'f> FixApplier<'f> {
             FixAction::ExcludeRows { .. } => {
                 if self.choose(id, cells) {
                     self.chosen.push(id.clone());
+                    self.n_chosen += 1;
                     *excluded = true;
                 }
             }
             FixAction::Keep { .. } | FixAction::Note { .. } => {
                 if self.choose(id, cells) {
                     self.chosen.push(id.clone());
+                    self.n_chosen += 1;
                 }
             }
             FixAction::Withdraw { .. } => {
@@ -355,9 +361,15 @@ impl<'f> FixApplier<'f> {
         }
     }
 
-    /// After every row: the rows the fix chose, in extract order.
+    /// After every row: the rows the fix chose, in extract order (kept for exclusions, kept
+    /// values and notes, which sign their rows).
     pub fn chosen(&self) -> &[RowId] {
         &self.chosen
+    }
+
+    /// How many rows the fix has chosen so far.
+    pub fn n_chosen(&self) -> u64 {
+        self.n_chosen
     }
 
     /// After every row: the first chosen cell the transform could not change, and why.

@@ -120,7 +120,7 @@ fn preview(
         cells.clear();
         cells.extend_from_slice(row.cells);
         let mut excluded = false;
-        let before = a.chosen().len();
+        let before = a.n_chosen();
         a.apply(row.id, &mut cells, &mut excluded, |col, old, new| {
             if broken.is_none()
                 && let (Some(rules), Some(v)) = (rules, new.as_deref())
@@ -133,7 +133,7 @@ fn preview(
                 out.samples.push((row.id.clone(), old, new));
             }
         });
-        out.rows += (a.chosen().len() - before) as u64;
+        out.rows += a.n_chosen() - before;
         Ok(ControlFlow::Continue(()))
     })?;
     if let Some(row) = a.missed_row() {
