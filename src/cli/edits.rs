@@ -347,3 +347,193 @@ pub fn withdraw(cx: &CliContext, a: WithdrawArgs) -> Result<i32> {
     writeln!(out::stdout(), "  withdraws: {original}")?;
     Ok(code)
 }
+
+#[derive(clap::Subcommand, Debug)]
+pub enum DecisionsCommand {
+    /// Record a reviewer's decisions from a CSV file, all or none: columns row, column,
+    /// action (set, missing, keep, note, exclude; set when left out), value, why
+    Apply(ApplyArgs),
+}
+
+#[derive(Args, Debug)]
+pub struct ApplyArgs {
+    /// Table
+    table: String,
+    /// The CSV file: a header naming row, column and value (action and why optional)
+    file: std::path::PathBuf,
+    /// Record it even where a decision changes no cell now
+    #[arg(long)]
+    allow_empty: bool,
+    #[command(flatten)]
+    meta: FixMeta,
+}
+
+/// One field of a decisions file, by header name.
+fn field<'a>(header: &[String], rec: &'a [String], name: &str) -> Option<&'a str> {
+    header
+        .iter()
+        .position(|h| h == name)
+        .and_then(|i| rec.get(i))
+        .map(String::as_str)
+}
+
+pub fn decisions(cx: &CliContext, cmd: DecisionsCommand) -> Result<i32> {
+    let DecisionsCommand::Apply(a) = cmd;
+    let path = &a.file;
+    let file = emend::ingest::open_input(path)?;
+    let mut reader = emend::table::csv::CsvReader::new(file, b',');
+    let mut rec = emend::table::csv::RawRecord::default();
+    let mut header: Vec<String> = Vec::new();
+    let mut lines: Vec<(u64, Vec<String>)> = Vec::new();
+    loop {
+        match reader.read_record(&mut rec) {
+            Ok(true) => {}
+            Ok(false) => break,
+            Err(emend::table::csv::ReadError::Csv(e)) => {
+                bail!("{}:{}:{}: {}", path.display(), e.line, e.column, e.problem)
+            }
+            Err(emend::table::csv::ReadError::Io(e)) => {
+                return Err(anyhow::Error::from(e).context(format!("reading {}", path.display())));
+            }
+        }
+        if rec.is_blank_line() {
+            continue;
+        }
+        let fields: Vec<String> = (0..rec.len())
+            .map(|i| {
+                String::from_utf8(rec.get(i).unwrap_or_default().to_vec()).map_err(|_| {
+                    anyhow::anyhow!(
+                        "{}:{}: field {} is not UTF-8",
+                        path.display(),
+                        rec.line,
+                        i + 1
+                    )
+                })
+            })
+            .collect::<Result<_>>()?;
+        if header.is_empty() {
+            for need in ["row", "column"] {
+                if !fields.iter().any(|f| f == need) {
+                    bail!(
+                        "{}:1: the header needs a '{need}' column (row, column, action, value, why)",
+                        path.display()
+                    );
+                }
+            }
+            header = fields;
+            continue;
+        }
+        if fields.len() != header.len() {
+            bail!(
+                "{}:{}: {} fields where the header has {}",
+                path.display(),
+                rec.line,
+                fields.len(),
+                header.len()
+            );
+        }
+        lines.push((rec.line, fields));
+    }
+    if lines.is_empty() {
+        bail!("{} holds no decisions", path.display());
+    }
+    let mut reqs = Vec::with_capacity(lines.len());
+    {
+        let store = cx.store()?;
+        let reader = store.read();
+        for (line, rec) in &lines {
+            let at = |e: anyhow::Error| anyhow::anyhow!("{}:{line}: {e}", path.display());
+            let row_text = field(&header, rec, "row").unwrap_or_default();
+            let column = field(&header, rec, "column").unwrap_or_default().to_owned();
+            let action = field(&header, rec, "action").unwrap_or("set").trim();
+            let value = field(&header, rec, "value").unwrap_or_default().to_owned();
+            let own = field(&header, rec, "why").unwrap_or_default().trim();
+            let row = query::parse_rows(&reader, &a.table, &[row_text.to_owned()])
+                .map_err(|e| at(e.into()))?
+                .remove(0);
+            let needs_column = |c: &str| {
+                if c.is_empty() {
+                    Err(at(anyhow::anyhow!("'{action}' needs a column")))
+                } else {
+                    Ok(())
+                }
+            };
+            let act = match action {
+                "set" | "" => {
+                    needs_column(&column)?;
+                    FixAction::Set {
+                        row,
+                        column,
+                        value: Some(value),
+                    }
+                }
+                "missing" => {
+                    needs_column(&column)?;
+                    FixAction::Set {
+                        row,
+                        column,
+                        value: None,
+                    }
+                }
+                "keep" => {
+                    needs_column(&column)?;
+                    FixAction::Keep {
+                        column,
+                        rows: Rows::Listed(vec![row]),
+                        resolved: Vec::new(),
+                    }
+                }
+                "note" => FixAction::Note {
+                    column: (!column.is_empty()).then_some(column),
+                    rows: Rows::Listed(vec![row]),
+                    resolved: Vec::new(),
+                },
+                "exclude" => FixAction::Exclude { row },
+                other => {
+                    return Err(at(anyhow::anyhow!(
+                        "unknown action '{other}': set, missing, keep, note or exclude"
+                    )));
+                }
+            };
+            let why = match own {
+                "" => a.meta.why.clone(),
+                own => format!("{}: {own}", a.meta.why.trim()),
+            };
+            reqs.push((
+                *line,
+                FixRequest {
+                    table: a.table.clone(),
+                    action: act,
+                    why,
+                    evidence: a.meta.evidence.clone(),
+                    consulted: a.meta.consulted.clone(),
+                    allow_empty: a.allow_empty,
+                    despite: a.meta.despite.clone(),
+                },
+            ));
+        }
+    }
+    let mut store = cx.store()?;
+    let now = cx.now()?;
+    let line_of: Vec<u64> = reqs.iter().map(|(l, _)| *l).collect();
+    let done = ledger::record_fixes(&mut store, reqs.into_iter().map(|(_, r)| r).collect(), &now)
+        .map_err(|(i, e)| {
+        let line = i
+            .checked_sub(1)
+            .and_then(|i| line_of.get(i))
+            .copied()
+            .unwrap_or(0);
+        anyhow::Error::from(e).context(format!(
+            "{}:{line}: refused, so no decision of the file was recorded",
+            path.display()
+        ))
+    })?;
+    writeln!(
+        out::stdout(),
+        "{} {} decisions from {} (pending; 'emend status' lists them, 'emend commit -m ...' signs them)",
+        paint(GOOD, "recorded"),
+        done.len(),
+        path.display()
+    )?;
+    Ok(0)
+}

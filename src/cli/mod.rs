@@ -92,6 +92,9 @@ enum Command {
     Check(check::CheckArgs),
     /// List the fixes waiting to be committed
     Status(JsonFlag),
+    /// A reviewer's decisions from a file
+    #[command(subcommand)]
+    Decisions(edits::DecisionsCommand),
     /// Withdraw a committed fix (by COMMIT.FIX as 'emend log' numbers it) in a new commit
     Withdraw(edits::WithdrawArgs),
     /// Drop one pending fix (by its number in 'emend status'), or every pending fix
@@ -193,6 +196,7 @@ fn run(cli: Cli) -> Result<i32> {
         Command::Keep(a) => edits::keep(cx, a),
         Command::Note(a) => edits::note(cx, a),
         Command::Withdraw(a) => edits::withdraw(cx, a),
+        Command::Decisions(c) => edits::decisions(cx, c),
         Command::Distrust(a) => fixes::distrust(cx, a),
         Command::Status(f) => commit::status(cx, f.json),
         Command::Discard(a) => commit::discard(cx, a),

@@ -163,11 +163,33 @@ pub struct Recorded {
 }
 
 /// Check a fix against the table's latest version and record it as pending.
-pub fn record_fix(store: &mut Store, mut req: FixRequest, now: &str) -> Result<Recorded> {
+pub fn record_fix(store: &mut Store, req: FixRequest, now: &str) -> Result<Recorded> {
+    let tx = store.transaction()?;
+    let done = record_in(&tx, req, now)?;
+    tx.commit()?;
+    Ok(done)
+}
+
+/// Checks and records several fixes as pending in one transaction: all are recorded, or, when
+/// one is refused, none is; the error names the 1-based place of the refused one.
+pub fn record_fixes(
+    store: &mut Store,
+    reqs: Vec<FixRequest>,
+    now: &str,
+) -> std::result::Result<Vec<Recorded>, (usize, Error)> {
+    let tx = store.transaction().map_err(|e| (0, e))?;
+    let mut out = Vec::with_capacity(reqs.len());
+    for (i, req) in reqs.into_iter().enumerate() {
+        out.push(record_in(&tx, req, now).map_err(|e| (i + 1, e))?);
+    }
+    tx.commit().map_err(|e| (0, e))?;
+    Ok(out)
+}
+
+fn record_in(tx: &WriteTx<'_>, mut req: FixRequest, now: &str) -> Result<Recorded> {
     if req.why.trim().is_empty() {
         return Err(Error::EmptyReason);
     }
-    let tx = store.transaction()?;
     let reader = tx.read();
     let head = reader.head()?.map(|(s, _)| s).unwrap_or(0);
     if reader.extract_at(&req.table, head)?.is_none() {
@@ -374,7 +396,7 @@ pub fn record_fix(store: &mut Store, mut req: FixRequest, now: &str) -> Result<R
     let note = (!remarks.is_empty()).then(|| remarks.join("; "));
     let mut evidence = Vec::new();
     for path in &req.evidence {
-        let (blob, n_bytes) = store_file(&tx, path)?;
+        let (blob, n_bytes) = store_file(tx, path)?;
         evidence.push(Evidence {
             name: path
                 .file_name()
@@ -413,7 +435,6 @@ pub fn record_fix(store: &mut Store, mut req: FixRequest, now: &str) -> Result<R
         text
     });
     tx.add_pending(&fix, effect.as_deref(), now)?;
-    tx.commit()?;
     Ok(Recorded {
         fix,
         note,

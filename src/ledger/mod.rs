@@ -24,7 +24,7 @@ pub mod trust;
 pub use carry::carry;
 pub use fixes::{
     FixRequest, PREVIEW_SAMPLES, Preview, Recorded, commit_pending, committed_fix, discard,
-    discard_one, record_fix, store_file,
+    discard_one, record_fix, record_fixes, store_file,
 };
 pub use ingest::{check_table_name, ingest};
 pub use seal::{CommitContext, CommitOutcome, seal};

@@ -383,3 +383,58 @@ fn show_finds_rows_by_key_position_and_condition_and_marks_decisions_in_text() {
     dir.cmd(["show", "s", "--where", "depth gt 1"])
         .fails(&["no column 'depth'"]);
 }
+
+#[test]
+fn a_reviewers_file_of_decisions_is_recorded_all_or_none() {
+    let dir = TestDir::new("decisions_apply");
+    setup_store(&dir);
+    dir.write("oct.csv", OCT);
+    dir.write("mail.txt", "Corrections from the reviewer (fictional)\n");
+    dir.cmd(["ingest", "oct.csv", "--table", "s", "--key", "sample_id"])
+        .ok();
+    dir.write(
+        "bad.csv",
+        "row,column,action,value,why\nRW-02,ph,set,7.1,lab sheet\nRW-77,ph,set,7,x\n",
+    );
+    dir.cmd(["decisions", "apply", "s", "bad.csv", "--why", "review"])
+        .fails(&["bad.csv:3", "no decision of the file was recorded", "RW-77"]);
+    dir.cmd(["status", "--json"])
+        .ok()
+        .says(&["\"pending\": []"]);
+    dir.write("ragged.csv", "row,column,value\nRW-02,ph,7.1,extra\n");
+    dir.cmd(["decisions", "apply", "s", "ragged.csv", "--why", "review"])
+        .fails(&["ragged.csv:2", "4 fields where the header has 3"]);
+    dir.write(
+        "good.csv",
+        "row,column,action,value,why\n\
+         RW-02,ph,set,7.1,lab sheet\n\
+         RW-05,lon,keep,,checked on the map\n\
+         RW-03,,note,,ask the volunteer\n\
+         RW-04,,exclude,,copy of RW-03\n",
+    );
+    dir.cmd([
+        "decisions",
+        "apply",
+        "s",
+        "good.csv",
+        "--why",
+        "reviewer's corrections",
+        "--evidence",
+        "mail.txt",
+    ])
+    .ok()
+    .says(&["recorded 4 decisions"]);
+    dir.cmd(["commit", "-m", "review"]).ok();
+    dir.cmd(["why", "s", "RW-02", "ph"])
+        .ok()
+        .says(&["reviewer's corrections: lab sheet", "mail.txt"]);
+    dir.cmd(["why", "s", "RW-05", "lon"])
+        .ok()
+        .says(&["kept on purpose"]);
+    let csv = dir.cmd(["export", "s"]).ok().stdout();
+    assert_eq!(
+        column(&csv, "sample_id"),
+        ["RW-01", "RW-02", "RW-03", "RW-05"]
+    );
+    dir.cmd(["verify"]).ok();
+}
