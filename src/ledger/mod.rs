@@ -15,6 +15,8 @@ pub mod apply;
 pub mod carry;
 pub mod fixes;
 pub mod ingest;
+#[cfg(test)]
+mod model_check;
 pub mod seal;
 pub mod tag;
 #[cfg(test)]
