@@ -34,6 +34,9 @@ pub struct ExportArgs {
     /// Keep distrusted columns
     #[arg(long)]
     with_distrusted: bool,
+    /// Add a last column, emend_notes, with the notes for review on each row
+    #[arg(long, conflicts_with = "raw")]
+    notes: bool,
     /// Also write W3C CSVW metadata for the exported CSV to FILE (e.g. samples.csv-metadata.json)
     #[arg(long, value_name = "FILE")]
     codebook: Option<PathBuf>,
@@ -111,6 +114,7 @@ pub fn export(cx: &CliContext, a: ExportArgs) -> Result<i32> {
         na: a.na.clone(),
         with_excluded: a.with_excluded,
         with_distrusted: a.with_distrusted,
+        notes: a.notes,
     };
     let run = |w: &mut dyn Write| -> Result<String> {
         if a.raw {

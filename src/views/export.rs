@@ -18,8 +18,51 @@ pub struct ExportOptions {
     pub na: Option<String>,
     /// Keep excluded rows.
     pub with_excluded: bool,
+    /// Add a last column, `emend_notes`, holding the notes for review on each row (`emend
+    /// note`), each as `column: reason` (or the reason alone for a note on the whole row),
+    /// joined by ` | `; empty for rows without notes.
+    pub notes: bool,
     /// Keep distrusted columns.
     pub with_distrusted: bool,
+}
+
+/// The header of the notes column [`ExportOptions::notes`] adds.
+pub const NOTES_COLUMN: &str = "emend_notes";
+
+/// Every note for review up to `version`, by row id, in the order they were recorded.
+fn notes_by_row(
+    reader: &Reader<'_>,
+    version: &Version,
+) -> Result<std::collections::HashMap<String, Vec<String>>> {
+    let mut out: std::collections::HashMap<String, Vec<String>> = Default::default();
+    if version.raw {
+        return Ok(out);
+    }
+    let mut bodies: std::collections::HashMap<u64, crate::model::CommitBody> = Default::default();
+    for m in reader.marks(&version.table, version.ingest_seq, version.seq)? {
+        if m.kind != "note" {
+            continue;
+        }
+        if let std::collections::hash_map::Entry::Vacant(e) = bodies.entry(m.seq) {
+            let stored = reader
+                .try_commit(m.seq)?
+                .ok_or_else(|| Error::Corrupt(format!("commit {} is missing", m.seq)))?;
+            e.insert(crate::query::decode(&stored)?);
+        }
+        let why = match &bodies[&m.seq].change {
+            crate::model::Change::Fixes(list) => list
+                .get(m.fix_idx as usize)
+                .map(|r| r.fix.why.clone())
+                .unwrap_or_default(),
+            _ => String::new(),
+        };
+        let (row, text) = match m.target.split_once(crate::model::CELL_SEPARATOR) {
+            Some((row, column)) => (row.to_owned(), format!("{column}: {why}")),
+            None => (m.target.clone(), why),
+        };
+        out.entry(row).or_default().push(text);
+    }
+    Ok(out)
 }
 
 /// What an export wrote.
@@ -45,12 +88,19 @@ pub fn export_version(
         .filter(|&i| opts.with_distrusted || !version.is_distrusted(i))
         .collect();
     let io = |e: std::io::Error| Error::io("<output>", e);
+    let notes = if opts.notes {
+        Some(notes_by_row(reader, version)?)
+    } else {
+        None
+    };
     if d.bom {
         out.write_all(&[0xEF, 0xBB, 0xBF]).map_err(io)?;
     }
     write_record(
         out,
-        keep.iter().map(|&i| version.header()[i].as_bytes()),
+        keep.iter()
+            .map(|&i| version.header()[i].as_bytes())
+            .chain(notes.as_ref().map(|_| NOTES_COLUMN.as_bytes())),
         d.delimiter,
         d.quote_all,
         d.crlf,
@@ -64,12 +114,17 @@ pub fn export_version(
             n_left_out += 1;
             return Ok(ControlFlow::Continue(()));
         }
+        let note = notes
+            .as_ref()
+            .map(|n| n.get(row.id.as_str()).map(|l| l.join(" | ")).unwrap_or_default());
         write_record(
             out,
-            keep.iter().map(|&i| match &row.cells[i] {
-                Some(v) if !v.is_empty() => v.as_bytes(),
-                _ => na.as_bytes(),
-            }),
+            keep.iter()
+                .map(|&i| match &row.cells[i] {
+                    Some(v) if !v.is_empty() => v.as_bytes(),
+                    _ => na.as_bytes(),
+                })
+                .chain(note.as_deref().map(str::as_bytes)),
             d.delimiter,
             d.quote_all,
             d.crlf,

@@ -217,6 +217,11 @@ fn each_decision_is_recorded_signed_traced_and_carried() {
         text.contains("RW-04"),
         "the excluded copy is in the diff: {text}"
     );
+    let noted = dir.cmd(["export", "s", "--notes"]).ok().stdout();
+    assert_eq!(
+        column(&noted, "emend_notes"),
+        ["", "ph: lab asked to re-run", "", ""]
+    );
     dir.cmd(["report", "s", "-o", "report.html"]).ok();
     let report = String::from_utf8(dir.read("report.html")).unwrap();
     assert!(report.contains("same bottle logged twice"));
