@@ -215,10 +215,11 @@ pub fn run(cx: &CliContext, a: DemoArgs) -> Result<i32> {
         &mut store,
         &now,
         Step {
-            action: FixAction::Exclude {
-                row: RowId("S-00977".into()),
+            action: FixAction::ExcludeRows {
+                rows: emend::model::edit::Rows::Duplicates(Vec::new()),
+                resolved: Vec::new(),
             },
-            why: "duplicate visit: the same bottle logged twice (identical to S-00976)",
+            why: "duplicate visit: the same bottle logged twice (S-00977 repeats S-00976)",
             evidence: vec![],
             consulted: None,
         },
@@ -233,6 +234,20 @@ pub fn run(cx: &CliContext, a: DemoArgs) -> Result<i32> {
             why: "always 'no': the app's default, never set by samplers",
             evidence: vec![],
             consulted: Some("app maintainer"),
+        },
+    )?;
+    fix(
+        &mut store,
+        &now,
+        Step {
+            action: FixAction::Note {
+                column: Some("ph".into()),
+                rows: emend::model::edit::Rows::Listed(vec![RowId("S-01210".into())]),
+                resolved: Vec::new(),
+            },
+            why: "asked the volunteer whether a second reading exists; missing until then",
+            evidence: vec![],
+            consulted: None,
         },
     )?;
     let second = ledger::commit_pending(&mut store, "First cleaning pass", &ctx)?;
