@@ -194,7 +194,7 @@ impl Error {
                 "a revision is a commit number, a tag, 8+ hex digits of an id, 'latest' or 'raw'; 'emend log' lists them".into()
             }
             Error::EmptyReason => "say why, e.g. --why \"lab sheet says 7.1\"".into(),
-            Error::NothingPending => "record a fix first (set, recode, missing, exclude, distrust)".into(),
+            Error::NothingPending => "record a fix first (set, recode, missing, tidy, exclude, keep, note, …; emend --help lists them)".into(),
             Error::Busy => "wait for the other process to finish and try again".into(),
             Error::Corrupt(_) => "run 'emend verify' for a full list of problems".into(),
             Error::BadExtract { .. } | Error::BadFile { .. } => {

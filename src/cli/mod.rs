@@ -63,7 +63,7 @@ enum Command {
     Show(show::ShowArgs),
     /// Find what needs cleaning: types, missing codes, outliers, spellings, suspect columns
     Profile(profile::ProfileArgs),
-    /// Set one cell to a value (or to missing)
+    /// Set one cell, or the chosen rows of a column, to a value, missing or a number transform
     #[command(allow_negative_numbers = true)]
     Set(fixes::SetArgs),
     /// Replace values across a column

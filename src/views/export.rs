@@ -114,9 +114,11 @@ pub fn export_version(
             n_left_out += 1;
             return Ok(ControlFlow::Continue(()));
         }
-        let note = notes
-            .as_ref()
-            .map(|n| n.get(row.id.as_str()).map(|l| l.join(" | ")).unwrap_or_default());
+        let note = notes.as_ref().map(|n| {
+            n.get(row.id.as_str())
+                .map(|l| l.join(" | "))
+                .unwrap_or_default()
+        });
         write_record(
             out,
             keep.iter()
