@@ -151,16 +151,17 @@ pub enum CaseArg {
 }
 
 #[derive(Args, Debug)]
+#[command(group(clap::ArgGroup::new("how").required(true).args(["spaces", "final_stop", "case"])))]
 pub struct TidyArgs {
     /// Table
     table: String,
     /// Column
     column: String,
     /// Drop leading and trailing spaces and make runs of spaces inside one space
-    #[arg(long, required_unless_present_any = ["final_stop", "case"], conflicts_with_all = ["final_stop", "case"])]
+    #[arg(long)]
     spaces: bool,
     /// Drop a lone full stop at the end
-    #[arg(long, conflicts_with = "case")]
+    #[arg(long)]
     final_stop: bool,
     /// Write the letters in one case
     #[arg(long, value_enum, value_name = "CASE")]

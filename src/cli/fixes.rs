@@ -164,7 +164,14 @@ pub fn set(cx: &CliContext, a: SetArgs) -> Result<i32> {
             "name the row and the column: 'emend set TABLE ROW COLUMN VALUE', or choose rows with --rows or --where"
         ),
         (true, [column]) => (None, column.clone(), None),
-        (true, [column, value]) => (None, column.clone(), Some(value.clone())),
+        (true, [column, value]) => {
+            if a.missing || a.negate || a.scale.is_some() || a.round.is_some() {
+                bail!(
+                    "with --rows or --where, name only the COLUMN ('{column} {value}' reads as a column and a value); the rows come from --rows or --where"
+                );
+            }
+            (None, column.clone(), Some(value.clone()))
+        }
         (true, _) => bail!(
             "with --rows or --where, give COLUMN [VALUE] only: 'emend set TABLE COLUMN VALUE --rows K1,K2'"
         ),
