@@ -43,7 +43,8 @@ pub struct ExportArgs {
     /// Also write W3C PROV-JSON lineage of the version to FILE
     #[arg(long, value_name = "FILE")]
     provenance: Option<PathBuf>,
-    /// Also write one CSV row per cell edit (row, column, old, new, fix, reason, ...) to FILE
+    /// Also write one CSV row per cell edit, and per row excluded, kept or noted (row, column,
+    /// old, new, fix, reason, ...) to FILE
     #[arg(long, value_name = "FILE")]
     decisions: Option<PathBuf>,
 }

@@ -553,7 +553,9 @@ pub fn prov_view(reader: &Reader<'_>, table: &str, upto: u64) -> Result<ProvView
     })
 }
 
-/// One row per cell edit of `table` from its extract up to `upto`.
+/// One row per cell edit of `table` from its extract up to `upto`, and one per row a fix
+/// excluded, kept a value of or noted (those have no old and new value; a note on a whole row
+/// has no column).
 pub fn decision_rows(
     reader: &Reader<'_>,
     table: &str,
@@ -568,20 +570,46 @@ pub fn decision_rows(
         let body = decode(&stored)?;
         if let Change::Fixes(list) = &body.change {
             for r in list.iter().filter(|r| r.fix.table == table) {
+                let row_of = |row: String, column: String, old, new| DecisionRow {
+                    row,
+                    column,
+                    old,
+                    new,
+                    fix_kind: r.fix.action.kind().to_string(),
+                    reason: r.fix.why.clone(),
+                    consulted: r.fix.consulted.clone(),
+                    evidence_blake3: r.fix.evidence.iter().map(|e| e.blob.to_hex()).collect(),
+                    commit: stored.id.to_hex(),
+                    author: body.author.name.clone(),
+                    time: body.time.clone(),
+                };
                 for e in &r.edits {
-                    out.push(DecisionRow {
-                        row: e.row.to_string(),
-                        column: e.column.clone(),
-                        old: e.old.clone(),
-                        new: e.new.clone(),
-                        fix_kind: r.fix.action.kind().to_string(),
-                        reason: r.fix.why.clone(),
-                        consulted: r.fix.consulted.clone(),
-                        evidence_blake3: r.fix.evidence.iter().map(|e| e.blob.to_hex()).collect(),
-                        commit: stored.id.to_hex(),
-                        author: body.author.name.clone(),
-                        time: body.time.clone(),
-                    });
+                    out.push(row_of(
+                        e.row.to_string(),
+                        e.column.clone(),
+                        e.old.clone(),
+                        e.new.clone(),
+                    ));
+                }
+                let (rows, column): (Vec<&crate::model::RowId>, Option<&str>) = match &r.fix.action
+                {
+                    FixAction::Exclude { row } => (vec![row], None),
+                    FixAction::ExcludeRows { resolved, .. } => (resolved.iter().collect(), None),
+                    FixAction::Keep {
+                        resolved, column, ..
+                    } => (resolved.iter().collect(), Some(column.as_str())),
+                    FixAction::Note {
+                        resolved, column, ..
+                    } => (resolved.iter().collect(), column.as_deref()),
+                    _ => (Vec::new(), None),
+                };
+                for row in rows {
+                    out.push(row_of(
+                        row.to_string(),
+                        column.unwrap_or_default().to_owned(),
+                        None,
+                        None,
+                    ));
                 }
             }
         }

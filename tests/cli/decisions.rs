@@ -222,6 +222,35 @@ fn each_decision_is_recorded_signed_traced_and_carried() {
         column(&noted, "emend_notes"),
         ["", "ph: lab asked to re-run", "", ""]
     );
+    dir.cmd([
+        "export",
+        "s",
+        "-o",
+        "clean.csv",
+        "--decisions",
+        "decisions.csv",
+    ])
+    .ok();
+    let decisions = String::from_utf8(dir.read("decisions.csv")).unwrap();
+    let lines: Vec<&str> = decisions.lines().collect();
+    assert!(
+        lines
+            .iter()
+            .any(|l| l.starts_with("RW-05,notes,,,keep,checked with the volunteer")),
+        "{decisions}"
+    );
+    assert!(
+        lines
+            .iter()
+            .any(|l| l.starts_with("RW-02,ph,,,note,lab asked to re-run")),
+        "{decisions}"
+    );
+    assert!(
+        lines
+            .iter()
+            .any(|l| l.starts_with("RW-04,,,,exclude,same bottle logged twice")),
+        "{decisions}"
+    );
     dir.cmd(["report", "s", "-o", "report.html"]).ok();
     let report = String::from_utf8(dir.read("report.html")).unwrap();
     assert!(report.contains("same bottle logged twice"));

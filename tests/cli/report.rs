@@ -272,14 +272,20 @@ fn codebook_and_provenance_follow_the_w3c_shapes() {
             }
         }
     }
-    // The decisions file: one row per cell edit of the version.
+    // The decisions file: one row per cell edit of the version, and one per row excluded,
+    // kept or noted.
     let decisions = std::fs::read_to_string(dir.path("d/decisions.csv")).unwrap();
     let rows = crate::util::parse_csv(&decisions, ',');
     assert_eq!(rows[0][..4], ["row", "column", "old", "new"]);
     assert_eq!(
         rows.len() - 1,
-        132,
-        "122 + 10 cells changed by the demo's two fix commits"
+        134,
+        "122 + 10 cells changed by the demo's two fix commits, one row excluded, one noted"
+    );
+    assert!(rows.iter().any(|r| r[0] == "S-00977" && r[4] == "exclude"));
+    assert!(
+        rows.iter()
+            .any(|r| r[0] == "S-01210" && r[1] == "ph" && r[4] == "note")
     );
     assert!(
         rows.iter()
