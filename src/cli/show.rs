@@ -213,9 +213,8 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
             }
         }
     }
-    let cell_key = |row: &emend::model::RowId, col: &str| {
-        format!("{}{}{col}", row.as_str(), emend::model::CELL_SEPARATOR)
-    };
+    let cell_key =
+        |row: &emend::model::RowId, col: &str| emend::model::cell_target(row.as_str(), col);
     let cols: Vec<usize> = if a.cols.is_empty() {
         (0..v.header().len()).collect()
     } else {

@@ -121,10 +121,6 @@ fn chosen_rows(action: &FixAction) -> Option<&Rows> {
     }
 }
 
-fn rows_present(rows: &HashMap<String, Vec<Option<String>>>, r: &RowId) -> bool {
-    rows.contains_key(r.as_str())
-}
-
 /// Replay the fixes made on `table`'s previous extract (up to `from`, default the last commit
 /// before the newest extract) against the newest extract, and stage the applicable ones.
 pub fn carry(
@@ -168,18 +164,7 @@ pub fn carry(
     })?;
 
     // Fixes withdrawn by `upto` are not carried, and neither are the withdrawals.
-    let mut withdrawn: HashSet<(u64, u64)> = HashSet::new();
-    for seq in prev_seq + 1..=upto {
-        if let Some(stored) = reader.try_commit(seq)?
-            && let Change::Fixes(list) = decode(&stored)?.change
-        {
-            for r in list {
-                if let FixAction::Withdraw { seq, fix } = r.fix.action {
-                    withdrawn.insert((seq, fix));
-                }
-            }
-        }
-    }
+    let withdrawn = crate::query::withdrawn_fixes(&reader, prev_seq, upto)?;
     // The fixes to carry, in order, with where they came from.
     let mut fixes: Vec<(Fix, Vec<crate::model::CellEdit>)> = Vec::new();
     for seq in prev_seq + 1..=upto {
@@ -376,7 +361,7 @@ pub fn carry(
                     let here: Vec<RowId> = list
                         .iter()
                         .filter_map(map_row)
-                        .filter(|r| rows_present(rows_seen, r) && !fixed.contains(r))
+                        .filter(|r| rows_seen.contains_key(r.as_str()) && !fixed.contains(r))
                         .collect();
                     if cells.iter().any(|c| c.outcome == Outcome::Conflict) {
                         Outcome::Conflict

@@ -18,6 +18,11 @@ pub const BODY_FORMAT: u32 = 1;
 /// note on a cell).
 pub const CELL_SEPARATOR: char = '\u{1e}';
 
+/// The target of a mark on one cell: the row id, [`CELL_SEPARATOR`], the column.
+pub fn cell_target(row: &str, column: &str) -> String {
+    format!("{row}{CELL_SEPARATOR}{column}")
+}
+
 /// Separates the values of a composite key inside a [`RowId`].
 pub const KEY_SEPARATOR: char = '\u{1f}';
 

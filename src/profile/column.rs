@@ -969,40 +969,6 @@ fn column_findings(
         );
     }
 
-    for (kind, list, what, why) in [
-        (
-            FindingKind::TitleCase,
-            &p.title_case,
-            "short function words capitalised, as a program title-cases",
-            "nearly every many-word value capitalises every word and none writes a short function word in lower case: the mark of text title-cased by a program; headline style lower-cases them, but an official name may differ (hyphens, other languages), so check before recoding",
-        ),
-        (
-            FindingKind::WordForms,
-            &p.word_forms,
-            "a word abbreviated where the column writes it in full, or the other way",
-            "at least four in five of the values that use the word write it the other way; \"St\" may also be \"Street\", so check before recoding",
-        ),
-    ] {
-        if list.is_empty() {
-            continue;
-        }
-        let n: u64 = list.iter().map(|r| r.count).sum();
-        add(
-            kind,
-            Severity::Low,
-            format!(
-                "{} with {what}: {}",
-                cells(n),
-                quote_list(list.iter().map(|r| r.from.as_str()), 5)
-            ),
-            FindingDetail::Respellings {
-                values: list.clone(),
-            },
-            None,
-            why.to_owned(),
-        );
-    }
-
     for group in &p.near_duplicates {
         let from: Vec<String> = group.variants().map(|m| m.value.clone()).collect();
         let certain = group.basis.certain();
@@ -1038,18 +1004,36 @@ fn column_findings(
         );
     }
 
-    for (kind, list, what, why) in [
+    // Respellings: spacing and case are certain (a ready recode of each value); title-casing
+    // and word forms are for review.
+    for (kind, list, ready, what, why) in [
         (
             FindingKind::Whitespace,
             &p.spacing,
+            true,
             "stray spacing or punctuation",
             "the text is the same once spaces are collapsed, a lone final stop is dropped (the value without it is also present) and a hyphen is spaced on both sides",
         ),
         (
             FindingKind::CaseVariants,
             &p.case_variants,
+            true,
             "a word capitalised against the column's usual form",
             "at least four in five of the values that use the word write it this way",
+        ),
+        (
+            FindingKind::TitleCase,
+            &p.title_case,
+            false,
+            "short function words capitalised, as a program title-cases",
+            "nearly every many-word value capitalises every word and none writes a short function word in lower case: the mark of text title-cased by a program; headline style lower-cases them, but an official name may differ (hyphens, other languages), so check before recoding",
+        ),
+        (
+            FindingKind::WordForms,
+            &p.word_forms,
+            false,
+            "a word abbreviated where the column writes it in full, or the other way",
+            "at least four in five of the values that use the word write it the other way; \"St\" may also be \"Street\", so check before recoding",
         ),
     ] {
         if list.is_empty() {
@@ -1058,7 +1042,11 @@ fn column_findings(
         let n: u64 = list.iter().map(|r| r.count).sum();
         add(
             kind,
-            Severity::Medium,
+            if ready {
+                Severity::Medium
+            } else {
+                Severity::Low
+            },
             format!(
                 "{} with {what}: {}",
                 cells(n),
@@ -1067,7 +1055,7 @@ fn column_findings(
             FindingDetail::Respellings {
                 values: list.clone(),
             },
-            Some(FixSuggestion::RecodeEach {
+            ready.then(|| FixSuggestion::RecodeEach {
                 column: column(),
                 pairs: list
                     .iter()

@@ -34,3 +34,24 @@ pub fn ingest_record(reader: &Reader<'_>, seq: u64) -> Result<IngestRecord> {
         ))),
     }
 }
+
+/// The fixes withdrawn by commits `after < seq <= upto`, as (commit, 1-based fix).
+pub fn withdrawn_fixes(
+    reader: &Reader<'_>,
+    after: u64,
+    upto: u64,
+) -> Result<std::collections::HashSet<(u64, u64)>> {
+    let mut out = std::collections::HashSet::new();
+    for seq in after + 1..=upto {
+        if let Some(stored) = reader.try_commit(seq)?
+            && let Change::Fixes(list) = decode(&stored)?.change
+        {
+            for r in list {
+                if let crate::model::FixAction::Withdraw { seq, fix } = r.fix.action {
+                    out.insert((seq, fix));
+                }
+            }
+        }
+    }
+    Ok(out)
+}

@@ -17,7 +17,7 @@ pub mod verify;
 pub mod version;
 pub mod why;
 
-pub use commits::{decode, ingest_record, log};
+pub use commits::{decode, ingest_record, log, withdrawn_fixes};
 pub use diff::align_positions;
 pub use in_force::rules_at;
 pub use rev::{Rev, parse_row, parse_rows, resolve, version_at};

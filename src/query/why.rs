@@ -197,7 +197,7 @@ pub fn why_cell(
             None => Ok(None),
         }
     };
-    let cell = format!("{}{}{column}", row.as_str(), crate::model::CELL_SEPARATOR);
+    let cell = crate::model::cell_target(row.as_str(), column);
     let mut decisions = Vec::new();
     for (kind, target) in [
         ("keep", cell.as_str()),

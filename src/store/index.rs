@@ -100,9 +100,7 @@ impl IndexRows {
                     if let Some((kind, rows, column)) = chosen {
                         for row in rows {
                             let target = match column {
-                                Some(c) => {
-                                    format!("{}{}{c}", row.0, crate::model::CELL_SEPARATOR)
-                                }
+                                Some(c) => crate::model::cell_target(&row.0, c),
                                 None => row.0.clone(),
                             };
                             self.marks.push(MarkRow {

@@ -214,18 +214,7 @@ pub fn report_view(
     let mut distrusted = Vec::new();
     let mut head = None;
     // Fixes withdrawn by `upto`: their exclusions and distrust no longer hold.
-    let mut withdrawn: HashSet<(u64, u64)> = HashSet::new();
-    for seq in after.ingest_seq..=upto {
-        if let Some(stored) = reader.try_commit(seq)?
-            && let Change::Fixes(list) = decode(&stored)?.change
-        {
-            for r in list {
-                if let FixAction::Withdraw { seq, fix } = r.fix.action {
-                    withdrawn.insert((seq, fix));
-                }
-            }
-        }
-    }
+    let withdrawn = crate::query::withdrawn_fixes(reader, after.ingest_seq, upto)?;
     for seq in after.ingest_seq..=upto {
         let Some(stored) = reader.try_commit(seq)? else {
             continue;

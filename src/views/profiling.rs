@@ -6,7 +6,6 @@
 //! counted as declared missing. Row numbers in the result are 1-based positions in the extract.
 
 use crate::error::Result;
-use crate::model::CELL_SEPARATOR;
 use crate::model::{Change, FixAction};
 use crate::profile::Finding;
 use crate::profile::column::ValueRows;
@@ -201,7 +200,7 @@ pub fn profile_version(
             let seqs: Option<Vec<u64>> = rows
                 .iter()
                 .map(|&n| {
-                    let target = format!("{}{}{}", row_id(n), CELL_SEPARATOR, f.column);
+                    let target = crate::model::cell_target(&row_id(n), &f.column);
                     kept.get(&target).copied()
                 })
                 .collect();
