@@ -310,6 +310,17 @@ impl<'r> Checker<'r> {
         })
     }
 
+    /// The slot of the rule `id` (`ph.hard`, a condition's id) among those checked, for
+    /// [`Checker::violations_of`]; `None` when the rules have no such rule for this header.
+    pub fn slot_of(&self, id: &str) -> Option<usize> {
+        self.outcomes.iter().position(|o| o.id == id)
+    }
+
+    /// How many rows the rule in `slot` has found so far.
+    pub fn violations_of(&self, slot: usize) -> u64 {
+        self.outcomes[slot].violations
+    }
+
     /// Checks one row.
     ///
     /// `pos` is the row's 1-based position and `row` the name to show for it (its key, or

@@ -250,6 +250,34 @@ impl RuleSet {
         Ok(rules)
     }
 
+    /// The id of every rule the file declares, in file order within columns then
+    /// conditions: `ph.type`, `ph.hard`, …, then each condition's id.
+    ///
+    /// ```
+    /// use emend::checks::RuleSet;
+    /// let rules = RuleSet::parse("[columns.ph]\nhard = { min = 0, max = 14 }\n").unwrap();
+    /// assert_eq!(rules.rule_ids(), ["ph.hard"]);
+    /// ```
+    pub fn rule_ids(&self) -> Vec<String> {
+        let mut ids = Vec::new();
+        for c in &self.columns {
+            let declared = [
+                c.value_type.is_some(),
+                c.required.is_some(),
+                c.unique.is_some(),
+                c.levels.is_some(),
+                c.pattern.is_some(),
+                c.hard.is_some(),
+                c.soft.is_some(),
+            ];
+            for (kind, _) in ColumnRules::KINDS.iter().zip(declared).filter(|(_, d)| *d) {
+                ids.push(format!("{}.{kind}", c.column.name));
+            }
+        }
+        ids.extend(self.conditions.iter().map(|c| c.id.clone()));
+        ids
+    }
+
     /// Every column the rules name (column tables, condition clauses and `value_of`), each
     /// once, in order of first mention in the file.
     pub fn columns(&self) -> impl Iterator<Item = &str> {

@@ -24,14 +24,17 @@ pub struct RowChoice {
     pub rows: Vec<String>,
     /// The rows where a condition holds, in the rules file's words: 'ph gt 14',
     /// 'site in "Fox Run","Heron Pool" and notes is missing'
-    #[arg(long = "where", value_name = "CONDITION")]
+    #[arg(long = "where", value_name = "CONDITION", conflicts_with = "breaking")]
     pub condition: Option<String>,
+    /// The rows a rule of the adopted rules finds: 'ph.hard', or a condition's id
+    #[arg(long, value_name = "RULE", conflicts_with = "rows")]
+    pub breaking: Option<String>,
 }
 
 impl RowChoice {
     /// Whether any rows were chosen.
     pub fn given(&self) -> bool {
-        !self.rows.is_empty() || self.condition.is_some()
+        !self.rows.is_empty() || self.condition.is_some() || self.breaking.is_some()
     }
 
     /// The stored choice; every row when none is given and `all` is allowed.
@@ -41,11 +44,19 @@ impl RowChoice {
                 parse_condition(text).map_err(|e| anyhow::anyhow!("--where '{text}': {e}"))?;
             return Ok(Rows::Where(clauses));
         }
+        if let Some(rule) = &self.breaking {
+            let store = cx.store()?;
+            let reader = store.read();
+            let head = reader.head()?.map_or(0, |(seq, _)| seq);
+            return Ok(query::breaking_rows(&reader, table, head, rule)?);
+        }
         if self.rows.is_empty() {
             if all {
                 return Ok(Rows::Where(Vec::new()));
             }
-            bail!("choose the rows: --rows KEY,KEY,… or --where 'COLUMN TEST VALUE'");
+            bail!(
+                "choose the rows: --rows KEY,KEY,…, --where 'COLUMN TEST VALUE' or --breaking RULE"
+            );
         }
         let store = cx.store()?;
         let reader = store.read();

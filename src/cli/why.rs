@@ -73,6 +73,9 @@ fn print_event(o: &mut dyn Write, e: &FixEvent, with_change: bool) -> Result<()>
             .map(|c| format!("{c}: "))
             .unwrap_or_default();
         writeln!(o, "    {} {col}{}", e.kind, change_text(&e.old, &e.new))?;
+        if e.kind != "set" {
+            writeln!(o, "    fix: {}", e.description)?;
+        }
     } else {
         writeln!(o, "    {}", e.description)?;
     }

@@ -2,10 +2,12 @@
 //! `missing` and `exclude` do to cells. Committing pending fixes and carrying fixes to a new
 //! extract both go through [`FixApplier`], so a fix means the same on every extract.
 
-use crate::checks::Condition;
+use crate::checks::{Checker, Condition, RuleSet};
 use crate::error::{Error, Result};
+use crate::hash::BlobId;
 use crate::model::edit::Rows;
 use crate::model::{Fix, FixAction, RowId};
+use crate::store::Reader;
 use crate::values::transform::{Compiled, TransformError};
 use std::collections::{HashMap, HashSet};
 
@@ -27,8 +29,49 @@ enum Chooser<'f> {
         columns: Option<Vec<usize>>,
         seen: HashSet<[u8; 16]>,
     },
+    /// Rows a rule finds: the rules checked row by row, watching one rule's count.
+    Breaking {
+        checker: Box<Checker<'f>>,
+        slot: usize,
+        pos: u64,
+    },
     /// A column the fix needs is not in this version: it chooses nothing.
     Inert,
+}
+
+/// The stored rules files that fixes choose rows by (`Rows::Breaking`), each read and parsed
+/// once; appliers borrow their rules from it.
+#[derive(Debug, Default)]
+pub struct RuleBook(HashMap<BlobId, RuleSet>);
+
+impl RuleBook {
+    /// Reads the rules files `fixes` choose rows by.
+    pub fn load<'a>(
+        reader: &Reader<'_>,
+        fixes: impl IntoIterator<Item = &'a Fix>,
+    ) -> Result<RuleBook> {
+        let mut book = HashMap::new();
+        for fix in fixes {
+            let Some(Rows::Breaking { rules, .. }) = fix.action.rows() else {
+                continue;
+            };
+            if book.contains_key(rules) {
+                continue;
+            }
+            let mut text = String::new();
+            std::io::Read::read_to_string(&mut reader.open_blob(rules)?, &mut text).map_err(
+                |e| Error::Corrupt(format!("rules file {} does not read: {e}", rules.short())),
+            )?;
+            let set = RuleSet::parse(&text).map_err(|e| {
+                Error::Corrupt(format!(
+                    "stored rules file {} does not parse: {e}",
+                    rules.short()
+                ))
+            })?;
+            book.insert(*rules, set);
+        }
+        Ok(RuleBook(book))
+    }
 }
 
 /// A fix prepared against one version's header: its column index, the values it looks for
@@ -69,7 +112,7 @@ fn listed(rows: &Rows) -> Option<&Vec<RowId>> {
 impl<'f> FixApplier<'f> {
     /// Prepares `fix` against a version's `header`; every column the fix names (its own and
     /// those of its condition) must be there, and its pattern must compile.
-    pub fn new(fix: &'f Fix, header: &[String]) -> Result<FixApplier<'f>> {
+    pub fn new(fix: &'f Fix, header: &[String], book: &'f RuleBook) -> Result<FixApplier<'f>> {
         let idx = |c: &str| {
             header
                 .iter()
@@ -100,6 +143,25 @@ impl<'f> FixApplier<'f> {
                     },
                     seen: HashSet::new(),
                 },
+                Rows::Breaking { rule, rules } => {
+                    let set = book.0.get(rules).ok_or_else(|| {
+                        Error::Corrupt(format!("rules file {} was not loaded", rules.short()))
+                    })?;
+                    let checker = Checker::new(set, header).map_err(|e| {
+                        Error::Invalid(format!("rule {rule} cannot be checked here: {e}"))
+                    })?;
+                    let slot = checker.slot_of(rule).ok_or_else(|| {
+                        Error::Invalid(format!(
+                            "the rules file {} has no rule {rule}",
+                            rules.short()
+                        ))
+                    })?;
+                    Chooser::Breaking {
+                        checker: Box::new(checker),
+                        slot,
+                        pos: 0,
+                    }
+                }
             };
         }
         if let FixAction::Edit { transform, .. } = &fix.action {
@@ -111,8 +173,8 @@ impl<'f> FixApplier<'f> {
 
     /// Prepares `fix` against `header` where columns may be gone (carrying to a new extract):
     /// a fix that names a column not there changes nothing.
-    pub fn lenient(fix: &'f Fix, header: &[String]) -> FixApplier<'f> {
-        FixApplier::new(fix, header).unwrap_or_else(|_| {
+    pub fn lenient(fix: &'f Fix, header: &[String], book: &'f RuleBook) -> FixApplier<'f> {
+        FixApplier::new(fix, header, book).unwrap_or_else(|_| {
             let mut a = FixApplier::with_column(fix, None);
             a.chooser = Chooser::Inert;
             a
@@ -183,13 +245,7 @@ impl<'f> FixApplier<'f> {
     }
 
     fn rows(&self) -> Option<&'f Rows> {
-        match &self.fix.action {
-            FixAction::Edit { rows, .. }
-            | FixAction::ExcludeRows { rows, .. }
-            | FixAction::Keep { rows, .. }
-            | FixAction::Note { rows, .. } => Some(rows),
-            _ => None,
-        }
+        self.fix.action.rows()
     }
 
     /// The fix.
@@ -239,6 +295,13 @@ impl<'f> FixApplier<'f> {
                 let mut print = [0u8; 16];
                 print.copy_from_slice(&h.finalize().as_bytes()[..16]);
                 !seen.insert(print)
+            }
+            Chooser::Breaking { checker, slot, pos } => {
+                *pos += 1;
+                let before = checker.violations_of(*slot);
+                let refs: Vec<Option<&str>> = cells.iter().map(Option::as_deref).collect();
+                checker.push_row(*pos, id.as_str(), &refs);
+                checker.violations_of(*slot) > before
             }
         }
     }

@@ -8,7 +8,7 @@
 //! problem are fixed too. Applied fixes are staged as pending, each naming the commits it came
 //! from, so `why` can show the chain of origins.
 
-use super::apply::FixApplier;
+use super::apply::{FixApplier, RuleBook};
 use crate::error::{Error, Result};
 use crate::model::edit::Rows;
 use crate::model::{Change, Fix, FixAction, Origin, RowId};
@@ -111,16 +111,6 @@ impl Carried {
 }
 
 /// How a fix chooses its rows, for fixes that do.
-fn chosen_rows(action: &FixAction) -> Option<&Rows> {
-    match action {
-        FixAction::Edit { rows, .. }
-        | FixAction::ExcludeRows { rows, .. }
-        | FixAction::Keep { rows, .. }
-        | FixAction::Note { rows, .. } => Some(rows),
-        _ => None,
-    }
-}
-
 /// Replay the fixes made on `table`'s previous extract (up to `from`, default the last commit
 /// before the newest extract) against the newest extract, and stage the applicable ones.
 pub fn carry(
@@ -229,16 +219,17 @@ pub fn carry(
         {
             wanted.insert(r.0);
         }
-        if let Some(Rows::Listed(list)) = chosen_rows(&fix.action) {
+        if let Some(Rows::Listed(list)) = fix.action.rows() {
             wanted.extend(list.iter().filter_map(map_row).map(|r| r.0));
         }
     }
     let col_of = |c: &str| new_version.col_idx(c).ok();
     // Per fix: how it applies in the new extract (its column there, the values it looks for).
     let header = new_version.header().to_vec();
+    let book = RuleBook::load(&reader, fixes.iter().map(|(fix, _)| fix))?;
     let mut appliers: Vec<FixApplier<'_>> = fixes
         .iter()
-        .map(|(fix, _)| FixApplier::lenient(fix, &header))
+        .map(|(fix, _)| FixApplier::lenient(fix, &header, &book))
         .collect();
     let mut rows: HashMap<String, Vec<Option<String>>> = HashMap::new();
     // Per value-level fix: (cells matching now, rows matching now).
@@ -375,7 +366,7 @@ pub fn carry(
                     }
                 }
                 // A condition or a duplicate search is evaluated afresh on the new extract.
-                Rows::Where(_) | Rows::Duplicates(_) => {
+                Rows::Where(_) | Rows::Duplicates(_) | Rows::Breaking { .. } => {
                     if matches_now > 0 {
                         Outcome::Applied
                     } else {

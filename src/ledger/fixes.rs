@@ -2,7 +2,7 @@
 //! content-addressed) and committing them: one streaming pass per table resolves each fix to
 //! the exact cells it changes and computes the new version hash.
 
-use super::apply::FixApplier;
+use super::apply::{FixApplier, RuleBook};
 use super::seal::{CommitContext, CommitOutcome, seal};
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, Digest};
@@ -74,13 +74,14 @@ fn appliers<'f>(
     fixes: &[&'f Fix],
     originals: &'f [Option<FixRecord>],
     header: &[String],
+    book: &'f RuleBook,
 ) -> Result<Vec<FixApplier<'f>>> {
     fixes
         .iter()
         .zip(originals)
         .map(|(f, o)| match o {
             Some(original) => Ok(FixApplier::reversing(f, original, header)),
-            None => FixApplier::new(f, header),
+            None => FixApplier::new(f, header, book),
         })
         .collect()
 }
@@ -110,7 +111,8 @@ fn preview(
     let mut broken: Option<Broken> = None;
     let header = version.header().to_vec();
     let originals = withdrawn(reader, &[fix])?;
-    let mut a = appliers(&[fix], &originals, &header)?.remove(0);
+    let book = RuleBook::load(reader, [fix])?;
+    let mut a = appliers(&[fix], &originals, &header, &book)?.remove(0);
     let mut out = Preview::default();
     let mut cells: Vec<Option<String>> = Vec::new();
     version.for_each_row(reader, |row| {
@@ -510,7 +512,8 @@ type Resolved = (Vec<Vec<CellEdit>>, Vec<Vec<RowId>>, TableVersion);
 fn resolve_fixes(reader: &Reader<'_>, version: &Version, fixes: &[&Fix]) -> Result<Resolved> {
     let header = version.header().to_vec();
     let originals = withdrawn(reader, fixes)?;
-    let mut appliers: Vec<FixApplier<'_>> = appliers(fixes, &originals, &header)?;
+    let book = RuleBook::load(reader, fixes.iter().copied())?;
+    let mut appliers: Vec<FixApplier<'_>> = appliers(fixes, &originals, &header, &book)?;
     let mut edits: Vec<Vec<CellEdit>> = vec![Vec::new(); fixes.len()];
     let mut distrusted = version.distrusted().to_vec();
     for (a, original) in appliers.iter().zip(&originals) {

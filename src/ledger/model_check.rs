@@ -82,7 +82,7 @@ impl Model {
                                 _ => unreachable!(),
                             }
                         }),
-                        Rows::Duplicates(_) => unreachable!(),
+                        Rows::Duplicates(_) | Rows::Breaking { .. } => unreachable!(),
                     };
                     if !chosen {
                         continue;

@@ -7,6 +7,7 @@
 //! applied to rows by [`crate::ledger::FixApplier`].
 
 use super::RowId;
+use crate::hash::BlobId;
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
@@ -22,6 +23,14 @@ pub enum Rows {
     /// Rows equal to an earlier row in the given columns (every column when empty); the
     /// first of each set of copies stays.
     Duplicates(Vec<String>),
+    /// The rows a rule of a stored rules file finds (`ph.hard`, or a condition's id), taken
+    /// from that file wherever the fix applies, so the fix means the same on every extract.
+    Breaking {
+        /// The rule id.
+        rule: String,
+        /// The stored rules file the rule comes from.
+        rules: BlobId,
+    },
 }
 
 impl fmt::Display for Rows {
@@ -56,6 +65,7 @@ impl fmt::Display for Rows {
                 columns.len(),
                 columns[..2].join(", ")
             ),
+            Rows::Breaking { rule, .. } => write!(f, "rows breaking {rule}"),
         }
     }
 }

@@ -267,6 +267,18 @@ impl FixAction {
         }
     }
 
+    /// How the fix chooses its rows, for the fixes that do (edits, exclusions of chosen
+    /// rows, keeps and notes).
+    pub fn rows(&self) -> Option<&Rows> {
+        match self {
+            FixAction::Edit { rows, .. }
+            | FixAction::ExcludeRows { rows, .. }
+            | FixAction::Keep { rows, .. }
+            | FixAction::Note { rows, .. } => Some(rows),
+            _ => None,
+        }
+    }
+
     /// The column this fix names, if any.
     pub fn column(&self) -> Option<&str> {
         match self {

@@ -1,7 +1,10 @@
 //! The rules file in force for a table at a commit, read back from the commit that adopted it.
 
 use super::commits::decode;
+use crate::checks::RuleSet;
 use crate::error::{Error, Result};
+use crate::hash::{BlobId, Digest};
+use crate::model::edit::Rows;
 use crate::model::{Change, FixAction};
 use crate::store::Reader;
 use std::io::Read;
@@ -42,4 +45,31 @@ pub fn rules_at(
         }
     }
     Ok(None)
+}
+
+/// The rows rule `rule` of the rules in force for `table` at commit `seq` finds, as a fix
+/// stores them: the rule id and the stored rules file.
+///
+/// # Errors
+///
+/// No rules adopted for the table by then, or no rule of that id (the error lists the ids).
+pub fn breaking_rows(reader: &Reader<'_>, table: &str, seq: u64, rule: &str) -> Result<Rows> {
+    let Some((_, name, text)) = rules_at(reader, table, seq)? else {
+        return Err(Error::Invalid(format!(
+            "no rules adopted for '{table}', so no rule '{rule}' to choose rows by; adopt a file with 'emend rules {table} FILE --why ...'"
+        )));
+    };
+    let set = RuleSet::parse(&text)
+        .map_err(|e| Error::Corrupt(format!("stored rules file {name} does not parse: {e}")))?;
+    let ids = set.rule_ids();
+    if !ids.iter().any(|id| id == rule) {
+        return Err(Error::Invalid(format!(
+            "the rules in force for '{table}' ({name}) have no rule '{rule}'; they have: {}",
+            ids.join(", ")
+        )));
+    }
+    Ok(Rows::Breaking {
+        rule: rule.to_owned(),
+        rules: BlobId(Digest::of(text.as_bytes())),
+    })
 }

@@ -19,7 +19,7 @@ pub mod why;
 
 pub use commits::{decode, ingest_record, log, withdrawn_fixes};
 pub use diff::align_positions;
-pub use in_force::rules_at;
+pub use in_force::{breaking_rows, rules_at};
 pub use rev::{Rev, parse_row, parse_rows, resolve, version_at};
 pub use verify::VerifyReport;
 pub use version::Version;

@@ -332,6 +332,93 @@ fn a_value_that_breaks_the_rules_in_force_needs_the_rule_named() {
 }
 
 #[test]
+fn rows_a_rule_finds_are_chosen_by_its_id_and_found_again_on_the_next_extract() {
+    let dir = TestDir::new("decisions_breaking");
+    setup_store(&dir);
+    dir.write("oct.csv", OCT);
+    dir.write("nov.csv", NOV);
+    // Longitudes of these (fictional) sites are west of Greenwich: a positive one is a sign slip.
+    dir.write(
+        "rules.toml",
+        "[columns.lon]\ntype = \"decimal\"\nhard = { min = -180, max = 0 }\n",
+    );
+    dir.cmd(["ingest", "oct.csv", "--table", "s", "--key", "sample_id"])
+        .ok();
+    dir.cmd([
+        "set",
+        "s",
+        "lon",
+        "--negate",
+        "--breaking",
+        "lon.hard",
+        "--why",
+        "x",
+    ])
+    .fails(&["no rules adopted for 's'", "emend rules s FILE"]);
+    dir.cmd(["rules", "s", "rules.toml", "--why", "west of Greenwich"])
+        .ok();
+    dir.cmd([
+        "set",
+        "s",
+        "lon",
+        "--negate",
+        "--breaking",
+        "lon.hrad",
+        "--why",
+        "x",
+    ])
+    .fails(&["no rule 'lon.hrad'", "lon.type, lon.hard"]);
+    dir.cmd([
+        "set",
+        "s",
+        "lon",
+        "--negate",
+        "--breaking",
+        "lon.hard",
+        "--rows",
+        "RW-01",
+        "--why",
+        "x",
+    ])
+    .fails(&["cannot be used with"]);
+    dir.cmd([
+        "set",
+        "s",
+        "lon",
+        "--negate",
+        "--breaking",
+        "lon.hard",
+        "--why",
+        "sign flipped by the app",
+    ])
+    .ok()
+    .says(&[
+        "rows breaking lon.hard",
+        "changes 2 cells",
+        "RW-01: '112.5' → '-112.5'",
+    ]);
+    dir.cmd(["commit", "-m", "signs"]).ok();
+    dir.cmd(["check", "s"]).ok();
+    dir.cmd(["why", "s", "RW-05", "lon"])
+        .ok()
+        .says(&["rows breaking lon.hard", "sign flipped by the app"]);
+
+    // November: the rule finds the new row RW-06 with the same slip.
+    dir.cmd(["ingest", "nov.csv", "--table", "s", "-m", "November"])
+        .ok();
+    let carried = dir.cmd(["carry", "s", "--json"]).ok().json();
+    assert_eq!(carried["fixes"][0]["outcome"], "applied", "{carried:#}");
+    dir.cmd(["commit", "-m", "November carried"]).ok();
+    let csv = dir.cmd(["export", "s"]).ok().stdout();
+    assert_eq!(
+        column(&csv, "lon"),
+        ["-112.5", "-111.9", "-112.0", "-110.7", "-111.1"]
+    );
+    dir.cmd(["check", "s"]).ok();
+    dir.cmd(["verify"]).ok().says(&["intact"]);
+}
+
+#[test]
 fn a_withdrawn_fix_leaves_the_version_without_it() {
     let dir = TestDir::new("decisions_withdraw");
     setup_store(&dir);
