@@ -49,10 +49,33 @@ pub fn json(value: &serde_json::Value) -> anyhow::Result<()> {
     Ok(())
 }
 
+/// The width of the terminal standard output writes to; `None` when it is not a terminal
+/// (a pipe or a file gets every column).
+pub fn terminal_width() -> Option<usize> {
+    use std::io::IsTerminal;
+    if !std::io::stdout().is_terminal() {
+        return None;
+    }
+    terminal_size::terminal_size()
+        .map(|(w, _)| usize::from(w.0))
+        .or_else(|| std::env::var("COLUMNS").ok()?.parse().ok())
+}
+
 /// Render rows as a plain table with aligned columns, measured in terminal columns (a wide
 /// character takes two); cells wider than `max_width` are cut with an ellipsis. `styles` gives
 /// an optional style per cell.
 pub fn table(header: &[String], rows: &[Vec<(String, Option<Style>)>], max_width: usize) -> String {
+    table_within(header, rows, max_width, None).0
+}
+
+/// As [`table`], keeping only the leading columns that fit in `width` terminal columns (at
+/// least the first two); returns the table and how many columns it shows.
+pub fn table_within(
+    header: &[String],
+    rows: &[Vec<(String, Option<Style>)>],
+    max_width: usize,
+    width: Option<usize>,
+) -> (String, usize) {
     let cut = |s: &str| -> String {
         let clean: String = s
             .chars()
@@ -93,8 +116,20 @@ pub fn table(header: &[String], rows: &[Vec<(String, Option<Style>)>], max_width
             }
         }
     }
+    let mut shown = widths.len();
+    if let Some(limit) = width {
+        let mut used = 0;
+        for (i, w) in widths.iter().enumerate() {
+            used += w + if i > 0 { 2 } else { 0 };
+            if used > limit && i >= 2 {
+                shown = i;
+                break;
+            }
+        }
+    }
     let mut out = String::new();
     let line = |out: &mut String, r: &[(String, Option<Style>)]| {
+        let r = &r[..r.len().min(shown)];
         for (i, (t, s)) in r.iter().enumerate() {
             let pad = widths[i].saturating_sub(t.width());
             let last = i + 1 == r.len();
@@ -116,7 +151,7 @@ pub fn table(header: &[String], rows: &[Vec<(String, Option<Style>)>], max_width
     for r in &cells {
         line(&mut out, r);
     }
-    out
+    (out, shown)
 }
 
 /// Show a cell value for people: missing is `<missing>`.
@@ -160,5 +195,26 @@ mod tests {
         let col = |line: &str, needle: char| line[..line.find(needle).unwrap()].width();
         assert_eq!(col(lines[1], 'x'), col(lines[2], 'y'));
         assert_eq!(col(lines[1], 'x'), 6, "4 columns of text, then 2 of gap");
+    }
+
+    #[test]
+    fn a_table_wider_than_the_terminal_keeps_the_leading_columns_that_fit() {
+        let header: Vec<String> = ["#", "site", "ph", "notes"].map(String::from).into();
+        let rows = vec![vec![
+            ("1".to_string(), None),
+            ("Heron Pool".to_string(), None),
+            ("7.1".to_string(), None),
+            ("a long note".to_string(), None),
+        ]];
+        // Widths 1, 10, 3, 11 with gaps of 2: the first three take 1+2+10+2+3 = 18 columns.
+        let (text, shown) = table_within(&header, &rows, 32, Some(20));
+        assert_eq!(shown, 3);
+        // The header line carries style codes; the row line is plain text.
+        assert!(text.lines().nth(1).unwrap().width() <= 20, "{text}");
+        assert!(!text.contains("notes"));
+        assert_eq!(table_within(&header, &rows, 32, Some(31)).1, 4);
+        assert_eq!(table_within(&header, &rows, 32, None).1, 4);
+        // However narrow, the position and one column stay.
+        assert_eq!(table_within(&header, &rows, 32, Some(3)).1, 2);
     }
 }

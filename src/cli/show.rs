@@ -347,7 +347,25 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
             r
         })
         .collect();
-    write!(o, "{}", out::table(&header, &rows, 32))?;
+    let (text, shown) = out::table_within(&header, &rows, 32, out::terminal_width());
+    write!(o, "{text}")?;
+    if shown < header.len() {
+        let hidden: Vec<&str> = cols[shown - 1..]
+            .iter()
+            .map(|&c| v.header()[c].as_str())
+            .collect();
+        writeln!(
+            o,
+            "{}",
+            paint(
+                DIM,
+                format!(
+                    "not shown, the terminal is too narrow: {} (choose with --cols, or pipe the output for every column)",
+                    hidden.join(", ")
+                )
+            )
+        )?;
+    }
     if picked.is_empty() {
         writeln!(o, "(no rows in that range)")?;
     }
