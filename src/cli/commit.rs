@@ -187,21 +187,19 @@ pub fn commit(cx: &CliContext, args: CommitArgs) -> Result<i32> {
     let cells: usize = records.iter().map(|r| r.edits.len()).sum();
     writeln!(
         o,
-        "{} commit {} {}: {} fixes, {} cells changed",
+        "{} commit {} {}: {}, {} changed",
         paint(GOOD, "signed"),
         done.seq,
         paint(DIM, done.id.short()),
-        records.len(),
-        cells
+        emend::model::quantity(records.len() as u64, "fix", "fixes"),
+        emend::model::quantity(cells as u64, "cell", "cells")
     )?;
     for r in records {
         let n = r.edits.len();
-        let count = match r.fix.action {
-            emend::model::FixAction::Exclude { .. } | emend::model::FixAction::Distrust { .. } => {
-                String::new()
-            }
-            _ if n == 0 => paint(BAD, " (changed no cell)"),
-            _ => format!(" ({n} cells)"),
+        let count = match out::cells_changed(&r.fix.action, n) {
+            None => String::new(),
+            Some(_) if n == 0 => paint(BAD, " (changed no cell)"),
+            Some(text) => format!(" ({text})"),
         };
         writeln!(o, "  {}: {}{count}", r.fix.table, r.fix.action.describe())?;
     }

@@ -18,9 +18,7 @@ use std::path::{Path, PathBuf};
 pub const DEMO_CSV: &[u8] = include_bytes!("../../demo/field_samples.csv");
 /// The bundled rules file for the demo table.
 pub const DEMO_RULES: &str = include_str!("../../demo/rules.toml");
-const LAB_SHEET: &str = "Riverwatch volunteer lab sheet (fictional)\n\
-sample S-00412, Mill Creek, pH meter reading: 7.1\n\
-entered in the field app as 71 (decimal point missed)\n";
+const LAB_SHEET: &str = include_str!("../../demo/lab_sheet_S-00412.txt");
 
 #[derive(Args, Debug)]
 pub struct DemoArgs {
@@ -307,7 +305,13 @@ pub fn run(cx: &CliContext, a: DemoArgs) -> Result<i32> {
                     o,
                     "    - {} {}",
                     r.fix.action.describe(),
-                    paint(DIM, format!("({} cells)", r.edits.len()))
+                    paint(
+                        DIM,
+                        format!(
+                            "({})",
+                            emend::model::quantity(r.edits.len() as u64, "cell", "cells")
+                        )
+                    )
                 )?;
             }
         }

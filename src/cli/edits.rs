@@ -109,19 +109,15 @@ pub fn record(
             recorded.fix.action,
             FixAction::ExcludeRows { .. } | FixAction::Keep { .. } | FixAction::Note { .. }
         );
-        let plural = |n: u64, one: &str, many: &str| {
-            if n == 1 {
-                format!("1 {one}")
-            } else {
-                format!("{n} {many}")
-            }
-        };
+        let plural = emend::model::quantity;
         if chooses {
             writeln!(
                 o,
                 "  chooses {} in the latest version",
                 plural(p.rows, "row", "rows")
             )?;
+        } else if matches!(recorded.fix.action, FixAction::Withdraw { .. }) && p.cells == 0 {
+            // Withdrawing a fix that changed no value: the line below says what comes back.
         } else if !matches!(recorded.fix.action, FixAction::Edit { .. }) {
             writeln!(
                 o,

@@ -154,6 +154,24 @@ pub fn table_within(
     (out, shown)
 }
 
+/// How many cells a committed fix changed, in words (`3 cells`); `None` for the fixes that
+/// change no value by design (exclusions, distrust, keep, note, rules), whose description
+/// says what they chose.
+pub fn cells_changed(action: &emend::model::FixAction, n: usize) -> Option<String> {
+    use emend::model::FixAction as A;
+    match action {
+        A::Exclude { .. }
+        | A::Distrust { .. }
+        | A::ExcludeRows { .. }
+        | A::Keep { .. }
+        | A::Note { .. }
+        | A::Rules { .. } => None,
+        // Withdrawing a fix that changed no value changes none either.
+        A::Withdraw { .. } if n == 0 => None,
+        _ => Some(emend::model::quantity(n as u64, "cell", "cells")),
+    }
+}
+
 /// Show a cell value for people: missing is `<missing>`.
 pub fn cell(v: &Option<String>) -> String {
     match v {

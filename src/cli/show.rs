@@ -403,10 +403,10 @@ pub fn summary(body: &CommitBody) -> String {
         Change::Fixes(list) => {
             let cells: usize = list.iter().map(|r| r.edits.len()).sum();
             format!(
-                "{} fixes to {}, {} cells changed",
-                list.len(),
+                "{} to {}, {} changed",
+                emend::model::quantity(list.len() as u64, "fix", "fixes"),
                 body.tables().join(", "),
-                cells
+                emend::model::quantity(cells as u64, "cell", "cells")
             )
         }
     }
@@ -510,12 +510,14 @@ pub fn log(cx: &CliContext, a: LogArgs) -> Result<i32> {
             for (i, r) in list.iter().enumerate() {
                 writeln!(
                     o,
-                    "      {}.{} {} — {} ({} cells)",
+                    "      {}.{} {} — {}{}",
                     c.seq,
                     i + 1,
                     r.fix.action.describe(),
                     r.fix.why,
-                    r.edits.len()
+                    out::cells_changed(&r.fix.action, r.edits.len())
+                        .map(|t| format!(" ({t})"))
+                        .unwrap_or_default()
                 )?;
             }
         }

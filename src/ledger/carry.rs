@@ -94,7 +94,11 @@ impl Carried {
         ] {
             let n = self.count(o);
             if n > 0 {
-                parts.push(format!("{n} cells {}", o.label()));
+                parts.push(format!(
+                    "{} {}",
+                    crate::model::quantity(n as u64, "cell", "cells"),
+                    o.label()
+                ));
             }
         }
         if matches!(
@@ -102,8 +106,9 @@ impl Carried {
             FixAction::Recode { .. } | FixAction::Missing { .. }
         ) {
             parts.push(format!(
-                "{} cells match now, {} of them new",
-                self.matches_now, self.new_matches
+                "{} now, {} of them new",
+                crate::model::quantity(self.matches_now, "cell matches", "cells match"),
+                self.new_matches
             ));
         }
         parts.join("; ")

@@ -115,13 +115,12 @@ fn preview(
     let mut a = appliers(&[fix], &originals, &header, &book)?.remove(0);
     let mut out = Preview::default();
     let mut cells: Vec<Option<String>> = Vec::new();
+    // Every row, excluded or not, as committing does: the counts said here are those the
+    // commit signs.
     version.for_each_row(reader, |row| {
-        if row.excluded {
-            return Ok(ControlFlow::Continue(()));
-        }
         cells.clear();
         cells.extend_from_slice(row.cells);
-        let mut excluded = false;
+        let mut excluded = row.excluded;
         let before = a.n_chosen();
         a.apply(row.id, &mut cells, &mut excluded, |col, old, new| {
             if broken.is_none()
@@ -427,10 +426,13 @@ fn record_in(tx: &WriteTx<'_>, mut req: FixRequest, now: &str) -> Result<Recorde
             .iter()
             .map(|(row, old, new)| format!("{row}: {} → {}", show(old), show(new)))
             .collect();
-        let mut text = format!(
-            "when recorded: {} cells change, {} rows chosen",
-            p.cells, p.rows
-        );
+        let cells = crate::model::quantity(p.cells, "cell changes", "cells change");
+        let mut text = if fix.action.rows().is_some() {
+            let rows = crate::model::quantity(p.rows, "row chosen", "rows chosen");
+            format!("when recorded: {cells}, {rows}")
+        } else {
+            format!("when recorded: {cells}")
+        };
         if !samples.is_empty() {
             text.push_str(&format!("; {}", samples.join(", ")));
         }

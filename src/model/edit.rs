@@ -154,6 +154,38 @@ pub enum Transform {
     Dates(DayOrder),
 }
 
+impl Transform {
+    /// What the transform does to `column`, as a verb phrase: `scale ph by 10^-1`.
+    pub fn phrase(&self, column: &str) -> String {
+        match self {
+            Transform::Value(Some(v)) => format!("set {column} to '{v}'"),
+            Transform::Value(None) => format!("set {column} to missing"),
+            Transform::Negate => format!("turn the sign of {column}"),
+            Transform::Scale(p) => format!("scale {column} by 10^{p}"),
+            Transform::Round(n) => format!("round {column} to {n} places"),
+            Transform::Spaces => format!("tidy the spacing of {column}"),
+            Transform::FinalStop => format!("drop a final full stop from {column}"),
+            Transform::Case(c) => format!(
+                "write {column} in {} case",
+                match c {
+                    LetterCase::Lower => "lower",
+                    LetterCase::Upper => "upper",
+                    LetterCase::Title => "title",
+                }
+            ),
+            Transform::Replace { pattern, with } => {
+                format!("replace /{pattern}/ by '{with}' in {column}")
+            }
+            Transform::Dates(DayOrder::DayMonthYear) => {
+                format!("rewrite {column} from day-month-year to ISO 8601")
+            }
+            Transform::Dates(DayOrder::MonthDayYear) => {
+                format!("rewrite {column} from month-day-year to ISO 8601")
+            }
+        }
+    }
+}
+
 impl fmt::Display for Transform {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {

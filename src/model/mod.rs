@@ -333,7 +333,7 @@ impl FixAction {
                 column,
                 rows,
                 transform,
-            } => format!("set {column} {transform} in {rows}"),
+            } => format!("{} in {rows}", transform.phrase(column)),
             FixAction::ExcludeRows { rows, resolved } => {
                 format!("exclude {rows}{}", counted(resolved))
             }
@@ -358,8 +358,16 @@ impl FixAction {
 fn counted(resolved: &[RowId]) -> String {
     match resolved.len() {
         0 => String::new(),
-        1 => " (1 row)".to_owned(),
-        n => format!(" ({n} rows)"),
+        n => format!(" ({})", quantity(n as u64, "row", "rows")),
+    }
+}
+
+/// `1 cell`, `2 cells`: a count with its noun in the right number.
+pub fn quantity(n: u64, one: &str, many: &str) -> String {
+    if n == 1 {
+        format!("1 {one}")
+    } else {
+        format!("{n} {many}")
     }
 }
 

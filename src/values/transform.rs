@@ -115,8 +115,12 @@ fn negate(v: &str) -> Result<String, TransformError> {
     Ok(join(!negative, int, frac))
 }
 
+/// Moves the decimal point. Zeros at the end of the fraction beyond the cell's own number of
+/// decimals are dropped, so the result has no more decimals than the cell unless its digits
+/// need them: 185.0 × 10^-1 is 18.5 (not 18.50), 7.10 × 10^-1 is 0.71, 7.25 × 10^-1 is 0.725.
 fn scale(v: &str, power: i32) -> Result<String, TransformError> {
     let (negative, int, frac) = parts(v)?;
+    let decimals = frac.len();
     let digits: String = format!("{int}{frac}");
     let point = int.len() as i64 + i64::from(power);
     let (int, frac) = if point <= 0 {
@@ -129,6 +133,10 @@ fn scale(v: &str, power: i32) -> Result<String, TransformError> {
         let (a, b) = digits.split_at(point as usize);
         (a.to_owned(), b.to_owned())
     };
+    let mut frac = frac;
+    while frac.len() > decimals && frac.ends_with('0') {
+        frac.pop();
+    }
     Ok(join(negative, &int, &frac))
 }
 
@@ -232,10 +240,14 @@ mod tests {
         assert_eq!(run(Transform::Negate, "-0.5").unwrap().unwrap(), "0.5");
         assert_eq!(run(Transform::Negate, "0").unwrap().unwrap(), "0");
         assert_eq!(run(Transform::Scale(-1), "71").unwrap().unwrap(), "7.1");
+        assert_eq!(run(Transform::Scale(-1), "185.0").unwrap().unwrap(), "18.5");
+        assert_eq!(run(Transform::Scale(-1), "7.10").unwrap().unwrap(), "0.71");
+        assert_eq!(run(Transform::Scale(-1), "7.25").unwrap().unwrap(), "0.725");
+        assert_eq!(run(Transform::Scale(-2), "100").unwrap().unwrap(), "1");
         assert_eq!(run(Transform::Scale(-2), "5").unwrap().unwrap(), "0.05");
         assert_eq!(run(Transform::Scale(3), "1.5").unwrap().unwrap(), "1500");
         assert_eq!(run(Transform::Scale(1), "-0.25").unwrap().unwrap(), "-2.5");
-        assert_eq!(run(Transform::Scale(-1), "710").unwrap().unwrap(), "71.0");
+        assert_eq!(run(Transform::Scale(-1), "710").unwrap().unwrap(), "71");
         assert!(run(Transform::Scale(1), "1e3").is_err());
         assert!(run(Transform::Negate, "abc").is_err());
     }

@@ -269,8 +269,8 @@ fn each_decision_is_recorded_signed_traced_and_carried() {
             .unwrap_or_else(|| panic!("{needle}: {carried:#}"))["outcome"]
             .clone()
     };
-    assert_eq!(outcome("sign turned"), "applied");
-    assert_eq!(outcome("times 10^-1"), "fixed at source");
+    assert_eq!(outcome("turn the sign of lon"), "applied");
+    assert_eq!(outcome("scale ph by 10^-1"), "fixed at source");
     assert_eq!(outcome("repeat an earlier row"), "fixed at source");
     dir.cmd(["commit", "-m", "November carried"]).ok();
     let csv = dir.cmd(["export", "s"]).ok().stdout();
@@ -436,7 +436,7 @@ fn a_withdrawn_fix_leaves_the_version_without_it() {
     dir.cmd(["commit", "-m", "first pass"]).ok();
     dir.cmd(["log"])
         .ok()
-        .says(&["2.1 set ph", "2.2 exclude row RW-04", "2.3 distrust"]);
+        .says(&["2.1 scale ph", "2.2 exclude row RW-04", "2.3 distrust"]);
     for (n, why) in [
         ("2.1", "the expert corrected herself"),
         ("2.2", "not a copy"),

@@ -150,7 +150,7 @@ fn main_scenario_walkthrough() {
         "commit 2",
         "First cleaning pass",
         "Test Steward <t@example.org>",
-        "set RW-002 ph to '7.1' — lab sheet says 7.1 (1 cells)",
+        "set RW-002 ph to '7.1' — lab sheet says 7.1 (1 cell)",
         "2026-10-01T09:00:00Z",
     ] {
         assert!(log.contains(needle), "log lacks {needle:?}:\n{log}");
