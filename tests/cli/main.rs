@@ -18,6 +18,7 @@ mod identity;
 mod keys;
 mod pipes;
 mod profile;
+mod readme;
 mod rebuild;
 mod report;
 mod roundtrip;
