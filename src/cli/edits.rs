@@ -284,18 +284,46 @@ pub fn dates(cx: &CliContext, a: DatesArgs) -> Result<i32> {
 pub struct KeepArgs {
     /// Table
     table: String,
-    /// Column whose values are right as they are
-    column: String,
+    /// [ROW] COLUMN: the column whose values are right as they are, in one row (its key or
+    /// #N) or in the rows --rows, --where or --breaking choose
+    #[arg(num_args = 1..=2, value_name = "ROW COLUMN", required = true)]
+    args: Vec<String>,
     #[command(flatten)]
     choice: RowChoice,
     #[command(flatten)]
     meta: FixMeta,
 }
 
+/// `[ROW] COLUMN` given as words: one row named before the column, or the column alone.
+fn row_then_column(
+    cx: &CliContext,
+    table: &str,
+    args: Vec<String>,
+    choice: &RowChoice,
+    all: bool,
+) -> Result<(Option<String>, Rows)> {
+    let mut args = args.into_iter();
+    match (args.next(), args.next()) {
+        (Some(row), Some(column)) => {
+            if choice.given() {
+                bail!(
+                    "name the row before the column, or choose rows with --rows, --where or --breaking, not both"
+                );
+            }
+            let one = RowChoice {
+                rows: vec![row],
+                ..RowChoice::default()
+            };
+            Ok((Some(column), one.resolve(cx, table, false)?))
+        }
+        (column, _) => Ok((column, choice.resolve(cx, table, all)?)),
+    }
+}
+
 pub fn keep(cx: &CliContext, a: KeepArgs) -> Result<i32> {
-    let rows = a.choice.resolve(cx, &a.table, false)?;
+    let (column, rows) = row_then_column(cx, &a.table, a.args, &a.choice, false)?;
     let action = FixAction::Keep {
-        column: a.column,
+        column: column.expect("clap requires the column"),
         rows,
         resolved: Vec::new(),
     };
@@ -306,8 +334,10 @@ pub fn keep(cx: &CliContext, a: KeepArgs) -> Result<i32> {
 pub struct NoteArgs {
     /// Table
     table: String,
-    /// Column the note is about (leave out for whole rows)
-    column: Option<String>,
+    /// [ROW] [COLUMN]: the column the note is about (leave out for whole rows), in one row
+    /// (its key or #N) or in the rows --rows, --where or --breaking choose
+    #[arg(num_args = 0..=2, value_name = "ROW COLUMN")]
+    args: Vec<String>,
     #[command(flatten)]
     choice: RowChoice,
     #[command(flatten)]
@@ -315,9 +345,10 @@ pub struct NoteArgs {
 }
 
 pub fn note(cx: &CliContext, a: NoteArgs) -> Result<i32> {
-    let rows = a.choice.resolve(cx, &a.table, a.column.is_some())?;
+    let whole_column = a.args.len() == 1;
+    let (column, rows) = row_then_column(cx, &a.table, a.args, &a.choice, whole_column)?;
     let action = FixAction::Note {
-        column: a.column,
+        column,
         rows,
         resolved: Vec::new(),
     };

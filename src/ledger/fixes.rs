@@ -427,8 +427,13 @@ fn record_in(tx: &WriteTx<'_>, mut req: FixRequest, now: &str) -> Result<Recorde
             .map(|(row, old, new)| format!("{row}: {} → {}", show(old), show(new)))
             .collect();
         let cells = crate::model::quantity(p.cells, "cell changes", "cells change");
-        let mut text = if fix.action.rows().is_some() {
-            let rows = crate::model::quantity(p.rows, "row chosen", "rows chosen");
+        let rows = crate::model::quantity(p.rows, "row chosen", "rows chosen");
+        let mut text = if matches!(
+            fix.action,
+            FixAction::Keep { .. } | FixAction::Note { .. } | FixAction::ExcludeRows { .. }
+        ) {
+            format!("when recorded: {rows}")
+        } else if fix.action.rows().is_some() {
             format!("when recorded: {cells}, {rows}")
         } else {
             format!("when recorded: {cells}")

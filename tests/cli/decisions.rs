@@ -397,6 +397,12 @@ fn rows_a_rule_finds_are_chosen_by_its_id_and_found_again_on_the_next_extract() 
         "changes 2 cells",
         "RW-01: '112.5' → '-112.5'",
     ]);
+    // One row can also be named before the column, as for `set`.
+    dir.cmd(["note", "s", "RW-02", "ph", "--why", "lab asked to re-run"])
+        .ok()
+        .says(&["note on ph in rows RW-02", "chooses 1 row"]);
+    dir.cmd(["keep", "s", "RW-03", "ph", "--rows", "RW-04", "--why", "x"])
+        .fails(&["name the row before the column, or choose rows"]);
     dir.cmd(["commit", "-m", "signs"]).ok();
     dir.cmd(["check", "s"]).ok();
     dir.cmd(["why", "s", "RW-05", "lon"])
