@@ -203,5 +203,10 @@ pub fn commit(cx: &CliContext, args: CommitArgs) -> Result<i32> {
         };
         writeln!(o, "  {}: {}{count}", r.fix.table, r.fix.action.describe())?;
     }
+    if let Some(note) =
+        super::id::untrusted_note(&store.read(), &done.body.author.key, &id.name, done.seq)?
+    {
+        writeln!(o, "{note}")?;
+    }
     Ok(0)
 }

@@ -249,6 +249,21 @@ pub fn run(cx: &CliContext, a: DemoArgs) -> Result<i32> {
         },
     )?;
     let second = ledger::commit_pending(&mut store, "First cleaning pass", &ctx)?;
+    // Whoever runs the demo with an identity of their own can commit to it: the demo steward
+    // vouches for their key, so their commits verify as trusted.
+    let you = cx
+        .try_identity()?
+        .filter(|you| you.signer.public_key() != id.signer.public_key());
+    if let Some(you) = &you {
+        ledger::trust_key(
+            &mut store,
+            &you.signer.public_key(),
+            &you.name,
+            you.email.as_deref(),
+            "the person who ran the demo, so that their own fixes verify as trusted",
+            &ctx,
+        )?;
+    }
     let report = query::verify::verify(&store.read(), &query::verify::Trust::Store, &mut |_| {})?;
     if !report.is_clean() {
         bail!("the demo store does not verify: {:?}", report.problems);
@@ -321,11 +336,11 @@ pub fn run(cx: &CliContext, a: DemoArgs) -> Result<i32> {
         "  verify: {} commits, {} table versions rebuilt, every signature checks out",
         report.n_commits, report.n_versions
     )?;
-    explore(&mut o, &dir)?;
+    explore(&mut o, &dir, you.as_ref().map(|y| y.name.as_str()))?;
     Ok(0)
 }
 
-fn explore(o: &mut dyn Write, dir: &Path) -> Result<()> {
+fn explore(o: &mut dyn Write, dir: &Path, you: Option<&str>) -> Result<()> {
     let exe = std::env::current_exe().ok();
     writeln!(o)?;
     writeln!(o, "explore it:")?;
@@ -358,13 +373,33 @@ fn explore(o: &mut dyn Write, dir: &Path) -> Result<()> {
             )
         )?;
     }
-    writeln!(
-        o,
-        "{}",
-        paint(
-            DIM,
-            "to record fixes yourself, make your own identity first: emend id new --name \"Your Name\""
-        )
-    )?;
+    match you {
+        Some(name) => writeln!(
+            o,
+            "{}",
+            paint(
+                DIM,
+                format!(
+                    "the demo steward trusts your key ({}) in the last commit, so you can record and commit fixes here",
+                    out::clean(name)
+                )
+            )
+        )?,
+        None => {
+            writeln!(
+                o,
+                "{}",
+                paint(
+                    DIM,
+                    "to record and commit fixes yourself, make your identity and let the demo steward vouch for it (in the demo folder):"
+                )
+            )?;
+            writeln!(o, "  emend id new --name \"Your Name\"")?;
+            writeln!(
+                o,
+                "  EMEND_HOME=.demo-identity emend trust \"$(emend id show --key)\" --name \"Your Name\" --why \"my own key\""
+            )?;
+        }
+    }
     Ok(())
 }

@@ -176,12 +176,39 @@ pub fn new(cx: &CliContext, args: NewArgs) -> Result<i32> {
     Ok(0)
 }
 
-pub fn show(cx: &CliContext, json: bool) -> Result<i32> {
+/// After a commit signed by `key`: a line saying, when this store does not trust the key at
+/// that commit, what `verify` will say and which command makes the key's next commits trusted.
+pub fn untrusted_note(
+    reader: &emend::store::Reader<'_>,
+    key: &[u8; 32],
+    name: &str,
+    seq: u64,
+) -> Result<Option<String>> {
+    if reader.trusted_at(key, seq)? {
+        return Ok(None);
+    }
+    Ok(Some(format!(
+        "note: this store does not trust your key {}, so 'emend verify' lists commit {seq} as signed by an untrusted key (exit 3). A trusted signer makes your later commits trusted with: emend trust {} --name {} --why \"...\"",
+        fingerprint(key),
+        data_encoding::HEXLOWER.encode(key),
+        out::shell_quote(name)
+    )))
+}
+
+pub fn show(cx: &CliContext, json: bool, key_only: bool) -> Result<i32> {
     let dir = cx.home()?;
     let id = cx.identity()?;
     let key = id.signer.public_key();
+    if key_only {
+        writeln!(out::stdout(), "{}", data_encoding::HEXLOWER.encode(&key))?;
+        return Ok(0);
+    }
     let trusted = match cx.store() {
-        Ok(store) => Some(store.read().signers()?.iter().any(|s| s.key == key)),
+        Ok(store) => {
+            let reader = store.read();
+            let next = reader.head()?.map_or(1, |(seq, _)| seq + 1);
+            Some(reader.trusted_at(&key, next)?)
+        }
         Err(_) => None,
     };
     if json {

@@ -31,6 +31,8 @@ pub const EXIT_OK: i32 = 0;
 pub const EXIT_FOUND: i32 = 1;
 /// Exit code: usage or input error.
 pub const EXIT_ERROR: i32 = 2;
+/// `verify`: nothing was altered, but some commits are signed by keys not trusted at them.
+pub const EXIT_UNTRUSTED: i32 = 3;
 
 #[derive(Parser, Debug)]
 #[command(
@@ -132,7 +134,17 @@ enum IdCommand {
     /// Make a new Ed25519 signing identity
     New(id::NewArgs),
     /// Show your identity and whether this store trusts it
-    Show(JsonFlag),
+    Show(IdShowArgs),
+}
+
+#[derive(Args, Debug)]
+struct IdShowArgs {
+    /// Print only the public key (64 hex digits), for 'emend trust' or a key list
+    #[arg(long, conflicts_with = "json")]
+    key: bool,
+    /// Print JSON (the shape is documented in docs/json.md)
+    #[arg(long)]
+    json: bool,
 }
 
 #[derive(Args, Debug)]
@@ -181,7 +193,7 @@ fn run(cli: Cli) -> Result<i32> {
     match cli.command {
         Command::Init => ingest::init(cx),
         Command::Id(IdCommand::New(a)) => id::new(cx, a),
-        Command::Id(IdCommand::Show(f)) => id::show(cx, f.json),
+        Command::Id(IdCommand::Show(f)) => id::show(cx, f.json, f.key),
         Command::Ingest(a) => ingest::ingest(cx, a),
         Command::Tables(f) => show::tables(cx, f.json),
         Command::Show(a) => show::show(cx, a),

@@ -172,6 +172,25 @@ pub fn cells_changed(action: &emend::model::FixAction, n: usize) -> Option<Strin
     }
 }
 
+/// Text from the store or an input file made safe for a terminal: control characters (escape
+/// sequences among them, which could repaint the screen) are shown as `\u{1b}`-style escapes.
+pub fn clean(s: &str) -> std::borrow::Cow<'_, str> {
+    if !s.chars().any(char::is_control) {
+        return std::borrow::Cow::Borrowed(s);
+    }
+    std::borrow::Cow::Owned(
+        s.chars()
+            .map(|c| {
+                if c.is_control() {
+                    c.escape_unicode().to_string()
+                } else {
+                    c.to_string()
+                }
+            })
+            .collect(),
+    )
+}
+
 /// Show a cell value for people: missing is `<missing>`.
 pub fn cell(v: &Option<String>) -> String {
     match v {
@@ -213,6 +232,19 @@ mod tests {
         let col = |line: &str, needle: char| line[..line.find(needle).unwrap()].width();
         assert_eq!(col(lines[1], 'x'), col(lines[2], 'y'));
         assert_eq!(col(lines[1], 'x'), 6, "4 columns of text, then 2 of gap");
+    }
+
+    #[test]
+    fn control_characters_never_reach_the_terminal_raw() {
+        // ECMA-48 (the control functions of terminals): ESC (U+001B) starts a control sequence.
+        let forged = "Ana\u{1b}[2K\rintact: every hash checks out";
+        let shown = clean(forged);
+        assert!(
+            !shown.contains('\u{1b}') && !shown.contains('\r'),
+            "{shown}"
+        );
+        assert!(shown.contains("\\u{1b}[2K"), "{shown}");
+        assert_eq!(clean("Heron Pool"), "Heron Pool");
     }
 
     #[test]

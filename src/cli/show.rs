@@ -400,6 +400,7 @@ pub fn summary(body: &CommitBody) -> String {
         ),
         Change::Tag(t) => format!("tag {} on commit {}", t.name, t.target_seq),
         Change::Trust(t) => format!("trust key {} ({}): {}", fingerprint(&t.key), t.name, t.why),
+        Change::Revoke(r) => format!("withdraw trust from key {}: {}", fingerprint(&r.key), r.why),
         Change::Fixes(list) => {
             let cells: usize = list.iter().map(|r| r.edits.len()).sum();
             format!(
@@ -415,7 +416,7 @@ pub fn summary(body: &CommitBody) -> String {
 pub fn log(cx: &CliContext, a: LogArgs) -> Result<i32> {
     let store = cx.store()?;
     let reader = store.read();
-    let trusted: Vec<[u8; 32]> = reader.signers()?.into_iter().map(|s| s.key).collect();
+    let trusted = reader.trust_list()?;
     let tags = reader.tags()?;
     if let Some(t) = &a.table
         && reader.extract_at(t, u64::MAX)?.is_none()
@@ -435,13 +436,17 @@ pub fn log(cx: &CliContext, a: LogArgs) -> Result<i32> {
                     "id": c.id.to_hex(),
                     "parent": b.parent.map(|p| p.to_hex()),
                     "time": b.time,
-                    "author": {"name": b.author.name, "email": b.author.email, "key": data_encoding::HEXLOWER.encode(&b.author.key), "fingerprint": fingerprint(&b.author.key), "trusted": trusted.contains(&b.author.key)},
+                    "author": {"name": b.author.name, "email": b.author.email, "key": data_encoding::HEXLOWER.encode(&b.author.key), "fingerprint": fingerprint(&b.author.key), "trusted": trusted.trusts(&b.author.key, c.seq)},
                     "message": b.message,
                     "tables": b.tables(),
                     "versions": b.versions.iter().map(|tv| serde_json::json!({"table": tv.table, "hash": tv.hash.to_hex(), "rows": tv.n_rows})).collect::<Vec<_>>(),
                 });
                 let obj = v.as_object_mut().expect("object");
                 match &b.change {
+                    Change::Revoke(r) => {
+                        obj.insert("kind".into(), "revoke".into());
+                        obj.insert("revoke".into(), serde_json::json!({"key": data_encoding::HEXLOWER.encode(&r.key), "fingerprint": fingerprint(&r.key), "why": r.why}));
+                    }
                     Change::Trust(t) => {
                         obj.insert("kind".into(), "trust".into());
                         obj.insert("trust".into(), serde_json::json!({"key": data_encoding::HEXLOWER.encode(&t.key), "fingerprint": fingerprint(&t.key), "name": t.name, "email": t.email, "why": t.why}));
@@ -480,7 +485,7 @@ pub fn log(cx: &CliContext, a: LogArgs) -> Result<i32> {
             .as_deref()
             .map(|e| format!(" <{e}>"))
             .unwrap_or_default();
-        let trust = if trusted.contains(&b.author.key) {
+        let trust = if trusted.trusts(&b.author.key, c.seq) {
             ""
         } else {
             " (untrusted key)"

@@ -46,6 +46,11 @@ pub fn tag_cmd(cx: &CliContext, a: TagArgs) -> Result<i32> {
         done.seq,
         paint(DIM, done.id.short())
     )?;
+    if let Some(note) =
+        super::id::untrusted_note(&store.read(), &done.body.author.key, &id.name, done.seq)?
+    {
+        writeln!(out::stdout(), "{note}")?;
+    }
     Ok(0)
 }
 

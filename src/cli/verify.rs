@@ -1,4 +1,5 @@
-//! `verify`: check the whole store and say what, if anything, is wrong. Exit 1 when anything is.
+//! `verify`: check the whole store and say what, if anything, is wrong. Exit 1 when anything
+//! was altered, 3 when nothing was but some commits are signed by untrusted keys.
 
 use super::out::{self, BAD, BOLD, GOOD, paint};
 use anyhow::{Context, Result, bail};
@@ -66,8 +67,14 @@ pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
         let _ = write!(anstream::stderr(), "\r{}\r", " ".repeat(40));
     }
     if a.json {
+        let list = |l: &[emend::query::verify::Problem]| {
+            l.iter()
+                .map(|p| serde_json::json!({"object": p.object, "problem": p.what}))
+                .collect::<Vec<_>>()
+        };
         out::json(&serde_json::json!({
             "intact": report.is_clean(),
+            "trusted": report.is_trusted(),
             "trust": if a.trust.is_some() { "file" } else { "store" },
             "checked": {
                 "commits": report.n_commits,
@@ -76,39 +83,78 @@ pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
                 "table_versions": report.n_versions,
                 "index_rows": report.n_index_rows,
             },
-            "problems": report.problems.iter().map(|p| serde_json::json!({"object": p.object, "problem": p.what})).collect::<Vec<_>>(),
+            "problems": list(&report.problems),
+            "untrusted": list(&report.untrusted),
+            "warnings": list(&report.warnings),
         }))?;
     } else {
         let mut o = out::stdout();
+        let q = emend::model::quantity;
         let counts = format!(
-            "{} commits, {} chunks, {} stored files, {} table versions, {} index rows",
-            report.n_commits,
-            report.n_chunks,
-            report.n_files,
-            report.n_versions,
-            report.n_index_rows
+            "{}, {} of stored data, {}, {} and {} of the derived index",
+            q(report.n_commits, "commit", "commits"),
+            q(report.n_chunks, "piece", "pieces"),
+            q(report.n_files, "stored file", "stored files"),
+            q(report.n_versions, "table version", "table versions"),
+            q(report.n_index_rows, "row", "rows")
         );
         if report.is_clean() {
             writeln!(
                 o,
-                "{} {counts}: every hash, signature, version and index row checks out",
+                "{} {counts} checked: every hash, signature, version and index row checks out",
                 paint(GOOD, "intact:")
             )?;
         } else {
             writeln!(
                 o,
-                "{} {} problems found ({counts} checked)",
+                "{} {} found ({counts} checked)",
                 paint(BAD, "NOT INTACT:"),
-                report.problems.len()
+                q(report.problems.len() as u64, "problem", "problems")
             )?;
             for p in &report.problems {
-                writeln!(o, "  {}: {}", paint(BOLD, &p.object), p.what)?;
+                writeln!(
+                    o,
+                    "  {}: {}",
+                    paint(BOLD, out::clean(&p.object)),
+                    out::clean(&p.what)
+                )?;
             }
         }
+        if !report.untrusted.is_empty() {
+            writeln!(
+                o,
+                "{} {} signed by keys not trusted at them (each is as its signer signed it, but that signer is not one this store trusts):",
+                paint(BAD, "untrusted signers:"),
+                q(report.untrusted.len() as u64, "commit is", "commits are")
+            )?;
+            for p in &report.untrusted {
+                writeln!(
+                    o,
+                    "  {}: {}",
+                    paint(BOLD, out::clean(&p.object)),
+                    out::clean(&p.what)
+                )?;
+            }
+            writeln!(
+                o,
+                "  next: a trusted signer vouches for a key with 'emend trust KEY --name NAME --why REASON' (its later commits are then trusted); an auditor decides with 'emend verify --trust KEYS.txt'"
+            )?;
+        }
+        for p in &report.warnings {
+            writeln!(
+                o,
+                "{} {}: {}",
+                paint(BOLD, "warning:"),
+                out::clean(&p.object),
+                out::clean(&p.what)
+            )?;
+        }
     }
-    Ok(if report.is_clean() {
-        super::EXIT_OK
-    } else {
+    Ok(if !report.is_clean() {
         super::EXIT_FOUND
+    } else if !report.is_trusted() {
+        super::EXIT_UNTRUSTED
+    } else {
+        super::EXIT_OK
     })
 }

@@ -31,4 +31,4 @@ pub use fixes::{
 pub use ingest::{check_table_name, ingest};
 pub use seal::{CommitContext, CommitOutcome, seal};
 pub use tag::{check_tag_name, tag};
-pub use trust::{trust, trust_key};
+pub use trust::{revoke_key, trust, trust_key};

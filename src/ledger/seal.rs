@@ -60,7 +60,13 @@ pub fn seal(
     tx.append_commit(&body, &bytes, &id, &signature)?;
     // The first signer of a store with no trusted key becomes trusted (recorded, not implied).
     if tx.read().signers()?.is_empty() {
-        tx.trust_signer(&body.author.key, &ctx.name, ctx.email.as_deref(), &ctx.now)?;
+        tx.trust_signer(
+            &body.author.key,
+            &ctx.name,
+            ctx.email.as_deref(),
+            &ctx.now,
+            0,
+        )?;
     }
     Ok(CommitOutcome {
         seq: body.seq,

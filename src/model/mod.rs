@@ -465,6 +465,21 @@ pub enum Change {
     Tag(TagRecord),
     /// A key the signer vouches for (key rotation, a new colleague); changes no table.
     Trust(TrustRecord),
+    /// A key the signer withdraws trust from, from this commit on; changes no table.
+    Revoke(RevokeRecord),
+}
+
+/// Trust withdrawn from a key by a commit signed with a trusted key: the key's commits from
+/// `from_seq` on verify as untrusted (a key known to be lost since commit 12 can be revoked
+/// from 12); its earlier ones keep the trust they had.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct RevokeRecord {
+    /// The Ed25519 public key.
+    pub key: [u8; 32],
+    /// The first commit of the key's that is no longer trusted.
+    pub from_seq: u64,
+    /// Why trust is withdrawn.
+    pub why: String,
 }
 
 /// A signing key introduced by a commit signed with an already trusted key.
@@ -541,7 +556,7 @@ impl CommitBody {
                 }
                 out
             }
-            Change::Tag(_) | Change::Trust(_) => Vec::new(),
+            Change::Tag(_) | Change::Trust(_) | Change::Revoke(_) => Vec::new(),
         }
     }
 }

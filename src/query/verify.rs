@@ -11,7 +11,7 @@ use crate::hash::{ChunkId, CommitId, Digest};
 use crate::model::{Change, CommitBody};
 use crate::signing;
 use crate::store::{IndexRows, Reader};
-use std::collections::HashSet;
+use std::collections::{HashMap, HashSet};
 
 /// One thing found wrong.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -35,14 +35,25 @@ pub struct VerifyReport {
     pub n_versions: u64,
     /// Index rows compared.
     pub n_index_rows: u64,
-    /// Everything wrong, in the order found.
+    /// Everything wrong, in the order found: what an altered, cut or forged store shows.
     pub problems: Vec<Problem>,
+    /// Commits validly signed by keys not trusted at that commit. Not tampering: someone
+    /// committed with a key nobody trusted yet (see `emend trust`).
+    pub untrusted: Vec<Problem>,
+    /// What an auditor should see but that proves nothing wrong (a commit dated before its
+    /// parent: clocks drift).
+    pub warnings: Vec<Problem>,
 }
 
 impl VerifyReport {
-    /// Whether nothing is wrong.
+    /// Whether nothing is wrong (untrusted signers and warnings aside).
     pub fn is_clean(&self) -> bool {
         self.problems.is_empty()
+    }
+
+    /// Whether nothing is wrong and every commit is signed by a key trusted at it.
+    pub fn is_trusted(&self) -> bool {
+        self.is_clean() && self.untrusted.is_empty()
     }
 
     fn problem(&mut self, object: impl Into<String>, what: impl Into<String>) {
@@ -69,10 +80,26 @@ pub fn verify(
     progress: &mut dyn FnMut(&str),
 ) -> Result<VerifyReport> {
     let mut report = VerifyReport::default();
-    let mut trusted: HashSet<[u8; 32]> = match trust {
-        Trust::Store => reader.signers()?.into_iter().map(|s| s.key).collect(),
-        Trust::Keys(keys) => keys.iter().copied().collect(),
+    // The roots of trust: the store's own (the keys it trusted without a trust commit), or an
+    // auditor's list. Trust commits and revocations signed by keys trusted at that point extend
+    // and narrow it, commit by commit: key -> (first trusted commit, first untrusted commit).
+    let signers = reader.signers()?;
+    let mut trusted: HashMap<[u8; 32], (u64, Option<u64>)> = match trust {
+        Trust::Store => signers
+            .iter()
+            .filter(|s| s.since_seq == 0)
+            .map(|s| (s.key, (0, None)))
+            .collect(),
+        Trust::Keys(keys) => keys.iter().map(|k| (*k, (0, None))).collect(),
     };
+    let trusts = |t: &HashMap<[u8; 32], (u64, Option<u64>)>, key: &[u8; 32], seq: u64| {
+        t.get(key)
+            .is_some_and(|(from, until)| seq >= *from && until.is_none_or(|u| seq < u))
+    };
+    let mut prev_time: Option<String> = None;
+    // Validly signed commits, judged once every trust commit and revocation is known (a
+    // revocation may reach back to commits before it).
+    let mut signed: Vec<(u64, [u8; 32], String)> = Vec::new();
 
     progress("commits");
     let mut bodies: Vec<CommitBody> = Vec::new();
@@ -140,23 +167,55 @@ pub fn verify(
                     body.author.name
                 ),
             );
-        } else if !trusted.contains(&body.author.key) {
-            report.problem(
-                &name,
-                format!(
-                    "signed by an untrusted key {} ({})",
-                    signing::fingerprint(&body.author.key),
-                    body.author.name
-                ),
-            );
+        } else {
+            signed.push((stored.seq, body.author.key, body.author.name.clone()));
         }
-        // A key vouched for by a valid commit of a trusted signer is trusted from then on, so an
-        // auditor's list of keys reaches rotated and added keys through the chain.
-        if let Change::Trust(t) = &body.change
-            && signing::verify(&body.author.key, stored.id.as_bytes(), &stored.signature)
-            && trusted.contains(&body.author.key)
+        if let Some(p) = &prev_time
+            && body.time < *p
         {
-            trusted.insert(t.key);
+            report.warnings.push(Problem {
+                object: name.clone(),
+                what: format!(
+                    "dated {}, before its parent ({p}): the signer's clock was behind, or the time was set by hand",
+                    body.time
+                ),
+            });
+        }
+        prev_time = Some(body.time.clone());
+        // A key vouched for by a valid commit of a trusted signer is trusted after it, so an
+        // auditor's list of keys reaches rotated and added keys through the chain; a revocation
+        // by a trusted signer ends a key's trust from the commit it names.
+        let vouched = signing::verify(&body.author.key, stored.id.as_bytes(), &stored.signature)
+            && trusts(&trusted, &body.author.key, stored.seq);
+        match &body.change {
+            Change::Trust(t) if vouched => {
+                trusted.entry(t.key).or_insert((stored.seq + 1, None));
+            }
+            Change::Revoke(r) if vouched => {
+                if let Some(entry) = trusted.get_mut(&r.key) {
+                    entry.1 = Some(entry.1.map_or(r.from_seq, |u| u.min(r.from_seq)));
+                }
+            }
+            _ => {}
+        }
+        if let Trust::Store = trust {
+            let listed = signers.iter().find(|s| match &body.change {
+                Change::Trust(t) => s.key == t.key,
+                Change::Revoke(r) => s.key == r.key,
+                _ => false,
+            });
+            let agrees = match (&body.change, listed) {
+                (Change::Trust(_), Some(s)) => s.since_seq == stored.seq,
+                (Change::Revoke(r), Some(s)) => s.revoked_from == Some(r.from_seq),
+                (Change::Trust(_) | Change::Revoke(_), None) => false,
+                _ => true,
+            };
+            if vouched && !agrees {
+                report.problem(
+                    &name,
+                    "the store's list of signers does not match this signed trust commit (the list was edited)",
+                );
+            }
         }
         if let Change::Fixes(records) = &body.change {
             for r in records {
@@ -182,6 +241,21 @@ pub fn verify(
         }
         prev = Some(stored.id);
         bodies.push(body);
+    }
+    for (seq, key, author) in signed {
+        if !trusts(&trusted, &key, seq) {
+            report.untrusted.push(Problem {
+                object: format!("commit {seq}"),
+                what: format!(
+                    "signed by key {} ({author}), which this {} does not trust at that commit",
+                    signing::fingerprint(&key),
+                    match trust {
+                        Trust::Store => "store",
+                        Trust::Keys(_) => "list of keys",
+                    }
+                ),
+            });
+        }
     }
 
     // Every stored file is read in order (so delta chunks rebuild cheaply through the cache):

@@ -13,7 +13,6 @@ use crate::hash::CommitId;
 use crate::model::{Author, Change, Evidence, FixAction, RowId};
 use crate::signing;
 use crate::store::Reader;
-use std::collections::HashSet;
 
 /// One fix in a value's life.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -84,7 +83,7 @@ pub struct CellStory {
 
 struct Events<'r, 'a> {
     reader: &'r Reader<'a>,
-    trusted: HashSet<[u8; 32]>,
+    trusted: crate::store::TrustList,
 }
 
 impl Events<'_, '_> {
@@ -108,7 +107,7 @@ impl Events<'_, '_> {
         Ok(FixEvent {
             seq,
             id: stored.id,
-            trusted: self.trusted.contains(&body.author.key),
+            trusted: self.trusted.trusts(&body.author.key, seq),
             author: body.author,
             time: body.time,
             message: body.message,
@@ -141,7 +140,7 @@ fn start(
 fn events<'r, 'a>(reader: &'r Reader<'a>) -> Result<Events<'r, 'a>> {
     Ok(Events {
         reader,
-        trusted: reader.signers()?.into_iter().map(|s| s.key).collect(),
+        trusted: reader.trust_list()?,
     })
 }
 

@@ -64,7 +64,7 @@ impl IndexRows {
     pub fn add_body(&mut self, body: &CommitBody) {
         let seq = body.seq;
         match &body.change {
-            Change::Tag(_) | Change::Trust(_) => {}
+            Change::Tag(_) | Change::Trust(_) | Change::Revoke(_) => {}
             Change::Ingest(r) => {
                 self.extracts
                     .push((r.table.clone(), seq, *r.extract.as_bytes()));

@@ -17,7 +17,7 @@ mod write;
 pub use blob::{BlobReader, ChunkCache};
 pub use codec::{Codec, DeltaBase, EncodedPiece, PIECE_SIZE, PieceEncoder};
 pub use index::{CellEditRow, IndexRows, MarkRow};
-pub use read::{PendingFix, Reader, SignerRecord, StoredCommit, row_text};
+pub use read::{PendingFix, Reader, SignerRecord, StoredCommit, TrustList, row_text};
 pub use write::WriteTx;
 use write::sql_err_busy;
 
@@ -31,7 +31,7 @@ pub const STORE_DIR: &str = ".emend";
 /// The store file inside [`STORE_DIR`].
 pub const STORE_FILE: &str = "store.sqlite";
 /// The schema version this build writes and reads.
-pub const SCHEMA_VERSION: u32 = 2;
+pub const SCHEMA_VERSION: u32 = 3;
 /// SQLite `application_id` of emend stores ("emnd").
 const APPLICATION_ID: i64 = 0x656d_6e64;
 const SCHEMA: &str = include_str!("schema.sql");
@@ -50,7 +50,32 @@ const MIGRATIONS: &[&str] = &[
     INSERT INTO mark_v2 SELECT tbl, kind, target, seq, fix_idx FROM mark;
     DROP TABLE mark;
     ALTER TABLE mark_v2 RENAME TO mark;",
+    // 2 → 3: when each signer's trust begins and ends (filled from the trust commits by
+    // `date_signers` after this step).
+    "ALTER TABLE signer ADD COLUMN since_seq INTEGER NOT NULL DEFAULT 0;
+    ALTER TABLE signer ADD COLUMN revoked_from INTEGER;",
 ];
+/// For a store made before schema v3: a signer first trusted by a trust commit is trusted from
+/// that commit on (its row was written with that commit's time); the others are the store's
+/// roots.
+fn date_signers(tx: &rusqlite::Transaction<'_>) -> Result<()> {
+    let mut stmt = tx.prepare("SELECT seq, body FROM commit_log ORDER BY seq")?;
+    let rows = stmt.query_map([], |r| Ok((r.get::<_, i64>(0)?, r.get::<_, Vec<u8>>(1)?)))?;
+    for row in rows {
+        let (seq, bytes) = row?;
+        let Ok(body) = crate::model::CommitBody::decode(&bytes) else {
+            continue; // verify reports a body that does not decode
+        };
+        if let crate::model::Change::Trust(t) = &body.change {
+            tx.execute(
+                "UPDATE signer SET since_seq = ?1 WHERE key = ?2 AND since_seq = 0 AND added_at = ?3",
+                rusqlite::params![seq, &t.key[..], body.time],
+            )?;
+        }
+    }
+    Ok(())
+}
+
 /// How long a writer waits for another writer before giving up.
 const BUSY_WAIT: Duration = Duration::from_secs(10);
 
@@ -174,9 +199,18 @@ impl Store {
                 .ok_or_else(|| Error::Corrupt(format!("no migration from schema v{v}")))?;
             tx.execute_batch(step)?;
         }
+        if from < 3 {
+            date_signers(&tx)?;
+        }
         tx.execute_batch(&format!("PRAGMA user_version = {SCHEMA_VERSION};"))?;
         tx.commit()?;
         Ok(())
+    }
+
+    /// The connection itself, for tests that write old or damaged stores.
+    #[cfg(test)]
+    pub(crate) fn conn(&self) -> &Connection {
+        &self.conn
     }
 
     /// The store file's path.
@@ -261,6 +295,8 @@ mod tests {
                      fix_idx INTEGER NOT NULL,
                      PRIMARY KEY (tbl, kind, target, seq, fix_idx)
                  ) STRICT, WITHOUT ROWID;
+                 DROP TABLE signer;
+                 CREATE TABLE signer (key BLOB PRIMARY KEY, name TEXT NOT NULL, email TEXT, added_at TEXT NOT NULL) STRICT;
                  INSERT INTO commit_log (seq, id, body, signature) VALUES (1, x'00', x'00', x'00');
                  INSERT INTO mark VALUES ('samples', 'exclude', 'S-1', 1, 0);
                  PRAGMA user_version = 1;",

@@ -49,6 +49,29 @@ pub struct SignerRecord {
     pub email: Option<String>,
     /// When trust was recorded.
     pub added_at: String,
+    /// The trust commit that vouched for the key; 0 for the store's roots.
+    pub since_seq: u64,
+    /// The first of the key's commits no longer trusted, when trust was withdrawn.
+    pub revoked_from: Option<u64>,
+}
+
+/// The store's signers with the commits each is trusted at.
+#[derive(Debug, Clone, Default)]
+pub struct TrustList(pub Vec<SignerRecord>);
+
+impl TrustList {
+    /// Whether `key`'s commit `seq` is trusted by the store.
+    pub fn trusts(&self, key: &[u8; 32], seq: u64) -> bool {
+        self.0.iter().any(|s| s.key == *key && s.trusts_at(seq))
+    }
+}
+
+impl SignerRecord {
+    /// Whether the key's commit `seq` is trusted: after the commit that vouched for it (any
+    /// commit for a root), and not after one that withdrew trust.
+    pub fn trusts_at(&self, seq: u64) -> bool {
+        (self.since_seq == 0 || seq > self.since_seq) && self.revoked_from.is_none_or(|r| seq < r)
+    }
 }
 
 /// Read queries, usable both on a store and inside a write transaction.
@@ -388,16 +411,28 @@ impl<'a> Reader<'a> {
     pub fn signers(&self) -> Result<Vec<SignerRecord>> {
         let mut stmt = self
             .conn
-            .prepare("SELECT key, name, email, added_at FROM signer ORDER BY added_at, name")?;
+            .prepare("SELECT key, name, email, added_at, since_seq, revoked_from FROM signer ORDER BY added_at, name")?;
         let rows = stmt.query_map([], |r| {
             Ok(SignerRecord {
                 key: blob32(r, 0)?,
                 name: r.get(1)?,
                 email: r.get(2)?,
                 added_at: r.get(3)?,
+                since_seq: r.get::<_, i64>(4)? as u64,
+                revoked_from: r.get::<_, Option<i64>>(5)?.map(|s| s as u64),
             })
         })?;
         Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// Whether this store trusts `key`'s commit `seq` (see [`SignerRecord::trusts_at`]).
+    pub fn trusted_at(&self, key: &[u8; 32], seq: u64) -> Result<bool> {
+        Ok(self.trust_list()?.trusts(key, seq))
+    }
+
+    /// The signers, to ask of many commits whether each is trusted.
+    pub fn trust_list(&self) -> Result<TrustList> {
+        Ok(TrustList(self.signers()?))
     }
 
     /// Whether a blob is stored.

@@ -48,11 +48,17 @@ CREATE TABLE commit_log (
 
 -- Keys the store trusts. Trust is recorded here, outside the chain; `verify --trust FILE`
 -- lets an auditor decide trust without believing this list.
+-- since_seq is 0 for the store's own roots (the identity that ran init, or the first to commit),
+-- else the trust commit that vouched for the key; revoked_from the first of its commits no longer
+-- trusted. A key's commit N is trusted when since_seq < N (or it is a root) and N < revoked_from
+-- (or none).
 CREATE TABLE signer (
-    key      BLOB PRIMARY KEY,
-    name     TEXT NOT NULL,
-    email    TEXT,
-    added_at TEXT NOT NULL
+    key         BLOB PRIMARY KEY,
+    name        TEXT NOT NULL,
+    email       TEXT,
+    added_at    TEXT NOT NULL,
+    since_seq   INTEGER NOT NULL DEFAULT 0,
+    revoked_from INTEGER
 ) STRICT;
 
 -- Fixes recorded but not yet committed, in the order they were recorded.

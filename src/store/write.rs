@@ -149,19 +149,31 @@ impl WriteTx<'_> {
         Ok(self.tx.execute("DELETE FROM pending WHERE id = ?1", [id])? == 1)
     }
 
-    /// Trust a signer (no change when trusted already).
+    /// Trust a signer (no change when it is listed already): a root of the store's trust when
+    /// `since_seq` is 0, else from after that trust commit on.
     pub fn trust_signer(
         &self,
         key: &[u8; 32],
         name: &str,
         email: Option<&str>,
         now: &str,
+        since_seq: u64,
     ) -> Result<bool> {
         let n = self.tx.execute(
-            "INSERT OR IGNORE INTO signer (key, name, email, added_at) VALUES (?1, ?2, ?3, ?4)",
-            params![key, name, email, now],
+            "INSERT OR IGNORE INTO signer (key, name, email, added_at, since_seq)
+             VALUES (?1, ?2, ?3, ?4, ?5)",
+            params![key, name, email, now, since_seq as i64],
         )?;
         Ok(n > 0)
+    }
+
+    /// Withdraw trust from a signer's commits from `seq` on.
+    pub fn revoke_signer(&self, key: &[u8; 32], seq: u64) -> Result<()> {
+        self.tx.execute(
+            "UPDATE signer SET revoked_from = ?2 WHERE key = ?1 AND revoked_from IS NULL",
+            params![key, seq as i64],
+        )?;
+        Ok(())
     }
 }
 

@@ -13,9 +13,9 @@ use crate::report::{
     ReportView, SignatureStatus, VerifyView, VersionView,
 };
 use crate::signing;
-use crate::store::{Reader, StoredCommit};
+use crate::store::{Reader, StoredCommit, TrustList};
 use crate::values::number_value;
-use std::collections::{HashMap, HashSet};
+use std::collections::HashMap;
 use std::ops::ControlFlow;
 
 /// How many changed cells of one fix the report lists (the count is always complete).
@@ -23,14 +23,10 @@ pub const CELLS_LISTED: usize = 20;
 const HISTOGRAM_BINS: usize = 20;
 const OUTLIERS_LISTED: usize = 50;
 
-fn signature(
-    body: &CommitBody,
-    stored: &StoredCommit,
-    trusted: &HashSet<[u8; 32]>,
-) -> SignatureStatus {
+fn signature(body: &CommitBody, stored: &StoredCommit, trusted: &TrustList) -> SignatureStatus {
     if !signing::verify(&body.author.key, stored.id.as_bytes(), &stored.signature) {
         SignatureStatus::Invalid
-    } else if trusted.contains(&body.author.key) {
+    } else if trusted.trusts(&body.author.key, stored.seq) {
         SignatureStatus::Valid
     } else {
         SignatureStatus::ValidUntrusted
@@ -207,7 +203,7 @@ pub fn report_view(
 ) -> Result<ReportView> {
     let after = Version::load(reader, table, rev.seq, rev.raw)?;
     let before = Version::load(reader, table, after.ingest_seq, true)?;
-    let trusted: HashSet<[u8; 32]> = reader.signers()?.into_iter().map(|s| s.key).collect();
+    let trusted = reader.trust_list()?;
     let upto = if rev.raw { after.ingest_seq } else { rev.seq };
     let mut commits = Vec::new();
     let mut excluded = Vec::new();
@@ -286,7 +282,7 @@ pub fn report_view(
         let relevant = match &body.change {
             Change::Ingest(r) => r.table == table,
             Change::Fixes(_) => !fixes.is_empty(),
-            Change::Tag(_) | Change::Trust(_) => false,
+            Change::Tag(_) | Change::Trust(_) | Change::Revoke(_) => false,
         };
         if !relevant {
             continue;
@@ -305,6 +301,7 @@ pub fn report_view(
                 Change::Fixes(_) => "fixes",
                 Change::Tag(_) => "tag",
                 Change::Trust(_) => "trust",
+                Change::Revoke(_) => "revoke",
             }
             .into(),
             fixes,
@@ -461,7 +458,7 @@ pub fn codebook_view(
 
 /// PROV-JSON lineage of a table up to `upto`.
 pub fn prov_view(reader: &Reader<'_>, table: &str, upto: u64) -> Result<ProvView> {
-    let trusted: HashSet<[u8; 32]> = reader.signers()?.into_iter().map(|s| s.key).collect();
+    let trusted = reader.trust_list()?;
     let tags = reader.tags()?;
     let mut extracts = Vec::new();
     let mut commits = Vec::new();
@@ -498,7 +495,7 @@ pub fn prov_view(reader: &Reader<'_>, table: &str, upto: u64) -> Result<ProvView
                     })
                     .collect(),
             ),
-            Change::Tag(_) | Change::Trust(_) => continue,
+            Change::Tag(_) | Change::Trust(_) | Change::Revoke(_) => continue,
         };
         let fp = signing::fingerprint(&body.author.key);
         if !signers.iter().any(|s| s.fingerprint == fp) {
@@ -506,7 +503,7 @@ pub fn prov_view(reader: &Reader<'_>, table: &str, upto: u64) -> Result<ProvView
                 fingerprint: fp.clone(),
                 name: body.author.name.clone(),
                 email: body.author.email.clone(),
-                trusted: trusted.contains(&body.author.key),
+                trusted: trusted.trusts(&body.author.key, stored.seq),
             });
         }
         commits.push(ProvCommit {

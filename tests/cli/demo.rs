@@ -63,3 +63,93 @@ fn demo_refuses_a_folder_that_is_not_empty() {
     std::fs::create_dir(dir.path("empty")).unwrap();
     dir.cmd(["demo", "empty"]).ok();
 }
+
+#[test]
+fn the_demo_followed_by_its_own_advice_leaves_a_store_its_user_commits_to() {
+    // Without an identity yet: the demo prints the two commands that make one and have the
+    // demo steward vouch for it; run them as written, then fix, commit and verify.
+    let dir = TestDir::new("demo_advice");
+    let text = dir.cmd(["demo", "demo"]).ok().stdout();
+    assert!(text.contains("emend id new --name"), "{text}");
+    assert!(
+        text.contains("EMEND_HOME=.demo-identity emend trust"),
+        "{text}"
+    );
+    let you = |args: &[&str]| dir.run(dir.command_in("demo", ".you", args));
+    you(&["id", "new", "--name", "New Analyst"]).ok();
+    let key = you(&["id", "show", "--key"])
+        .ok()
+        .stdout()
+        .trim()
+        .to_string();
+    assert_eq!(key.len(), 64, "{key}");
+    dir.run(dir.command_in(
+        "demo",
+        "demo/.demo-identity",
+        [
+            "trust",
+            &key,
+            "--name",
+            "New Analyst",
+            "--why",
+            "my own key",
+        ],
+    ))
+    .ok();
+    you(&[
+        "set",
+        "samples",
+        "S-00003",
+        "notes",
+        "cattle upstream",
+        "--why",
+        "x",
+    ])
+    .ok();
+    let commit = you(&["commit", "-m", "my first fix"]).ok().stdout();
+    assert!(!commit.contains("does not trust"), "{commit}");
+    you(&["verify"]).ok().says(&["intact"]);
+
+    // With an identity already made: the demo vouches for it itself.
+    let dir = TestDir::new("demo_trusts_you");
+    dir.cmd(["id", "new", "--name", "New Analyst"]).ok();
+    dir.cmd(["demo", "demo"])
+        .ok()
+        .says(&["the demo steward trusts your key (New Analyst)"]);
+    let run = |args: &[&str]| dir.run(dir.command_in("demo", ".identity", args));
+    run(&[
+        "set",
+        "samples",
+        "S-00003",
+        "notes",
+        "cattle upstream",
+        "--why",
+        "x",
+    ])
+    .ok();
+    run(&["commit", "-m", "my first fix"]).ok();
+    let v = run(&["verify", "--json"]).ok().json();
+    assert_eq!(v["trusted"], true, "{v:#}");
+
+    // Without that step, the commit says so and verify gives its own exit code, 3.
+    let dir = TestDir::new("demo_untrusted");
+    dir.cmd(["demo", "demo"]).ok();
+    let you = |args: &[&str]| dir.run(dir.command_in("demo", ".you", args));
+    you(&["id", "new", "--name", "New Analyst"]).ok();
+    you(&[
+        "set",
+        "samples",
+        "S-00003",
+        "notes",
+        "cattle upstream",
+        "--why",
+        "x",
+    ])
+    .ok();
+    you(&["commit", "-m", "my first fix"])
+        .ok()
+        .says(&["this store does not trust your key", "emend trust"]);
+    you(&["verify"])
+        .code(3)
+        .says(&["intact:", "untrusted signers"]);
+}

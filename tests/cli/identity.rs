@@ -129,19 +129,25 @@ fn commits_by_an_untrusted_key_fail_verify_until_trusted_by_a_key_file() {
     let text = dir.cmd(["log"]).ok().stdout();
     assert_eq!(text.matches("(untrusted key)").count(), 2, "{text}");
 
-    let v = dir.cmd(["verify", "--json"]).code(1).json();
+    // Untrusted is not altered: its own list and its own exit code (3).
+    let v = dir.cmd(["verify", "--json"]).code(3).json();
     assert_eq!(v["trust"], "store");
-    let problems = v["problems"].as_array().unwrap();
+    assert_eq!(v["intact"], true);
+    assert_eq!(v["trusted"], false);
+    assert!(v["problems"].as_array().unwrap().is_empty(), "{v:#}");
+    let problems = v["untrusted"].as_array().unwrap();
     assert_eq!(problems.len(), 2, "{v:#}");
     for (p, seq) in problems.iter().zip([3, 4]) {
         assert_eq!(p["object"], format!("commit {seq}"));
         let what = p["problem"].as_str().unwrap();
-        assert!(what.contains("signed by an untrusted key"), "{what}");
+        assert!(what.contains("does not trust at that commit"), "{what}");
         assert!(what.contains("Second Analyst"), "{what}");
     }
-    dir.cmd(["verify"])
-        .code(1)
-        .says(&["NOT INTACT", "commit 3: signed by an untrusted key"]);
+    dir.cmd(["verify"]).code(3).says(&[
+        "intact:",
+        "untrusted signers: 2 commits are",
+        "commit 3: signed by key",
+    ]);
 
     // An auditor's key file with both keys: everything checks out.
     dir.write(
@@ -162,9 +168,9 @@ fn commits_by_an_untrusted_key_fail_verify_until_trusted_by_a_key_file() {
     dir.write("second_only.txt", &format!("{second}\n"));
     let v = dir
         .cmd(["verify", "--json", "--trust", "second_only.txt"])
-        .code(1)
+        .code(3)
         .json();
-    let objects: Vec<&str> = v["problems"]
+    let objects: Vec<&str> = v["untrusted"]
         .as_array()
         .unwrap()
         .iter()
@@ -172,7 +178,7 @@ fn commits_by_an_untrusted_key_fail_verify_until_trusted_by_a_key_file() {
         .collect();
     assert_eq!(objects, ["commit 1", "commit 2"]);
     assert!(
-        v["problems"][0]["problem"]
+        v["untrusted"][0]["problem"]
             .as_str()
             .unwrap()
             .contains("Test Steward")
@@ -254,14 +260,14 @@ fn a_commit_re_signed_by_a_key_added_to_the_store_is_caught_by_an_auditor_key_fi
     dir.write("keys.txt", &format!("{honest}\n"));
     let v = dir
         .cmd(["verify", "--json", "--trust", "keys.txt"])
-        .code(1)
+        .code(3)
         .json();
-    assert_eq!(v["problems"][0]["object"], "commit 2", "{v:#}");
+    assert_eq!(v["untrusted"][0]["object"], "commit 2", "{v:#}");
     assert!(
-        v["problems"][0]["problem"]
+        v["untrusted"][0]["problem"]
             .as_str()
             .unwrap()
-            .contains("untrusted key")
+            .contains("this list of keys does not trust")
     );
 }
 
@@ -276,7 +282,9 @@ fn init_with_an_identity_trusts_it_at_once() {
         .ok();
     dir.cmd_as("second", ["ingest", "river.csv", "--table", "samples"])
         .ok();
-    dir.cmd(["verify"])
-        .code(1)
-        .says(&["commit 1: signed by an untrusted key"]);
+    dir.cmd(["verify"]).code(3).says(&[
+        "untrusted signers",
+        "commit 1: signed by key",
+        "emend trust KEY",
+    ]);
 }
