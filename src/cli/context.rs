@@ -74,6 +74,14 @@ impl CliContext {
         })
     }
 
+    /// Who records fixes now: the identity in use, when there is one.
+    pub fn recorder(&self) -> Result<Option<emend::model::Recorder>> {
+        Ok(self.try_identity()?.map(|id| emend::model::Recorder {
+            key: id.signer.public_key(),
+            name: id.name,
+        }))
+    }
+
     /// The signing identity, when there is one.
     pub fn try_identity(&self) -> Result<Option<Identity>> {
         id::try_load(&self.home()?)

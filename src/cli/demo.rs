@@ -67,6 +67,7 @@ fn fix(store: &mut Store, now: &str, step: Step<'_>) -> Result<()> {
             consulted: step.consulted.map(String::from),
             allow_empty: false,
             despite: None,
+            by: None,
         },
         now,
     )?;
@@ -306,14 +307,13 @@ pub fn run(cx: &CliContext, a: DemoArgs) -> Result<i32> {
     )?;
     for done in [&first, &second] {
         if let Change::Fixes(list) = &done.body.change {
-            let cells: usize = list.iter().map(|r| r.edits.len()).sum();
             writeln!(
                 o,
-                "  commit {} \"{}\": {} fixes, {} cells changed",
+                "  commit {} \"{}\": {}, {} changed",
                 done.seq,
                 done.body.message,
-                list.len(),
-                cells
+                emend::model::quantity(list.len() as u64, "fix", "fixes"),
+                emend::model::quantity(emend::model::net_cells(list), "cell", "cells")
             )?;
             for r in list {
                 writeln!(

@@ -61,10 +61,7 @@ fn diff_json(d: &Diff) -> serde_json::Value {
 }
 
 pub(super) fn show_value(v: &Option<String>) -> String {
-    match v {
-        Some(s) => s.clone(),
-        None => "<missing>".into(),
-    }
+    out::cell(v)
 }
 
 /// old → new, with a word-level difference for long texts.
@@ -81,7 +78,8 @@ pub(super) fn change_text(old: &Option<String>, new: &Option<String>) -> String 
             }
             s
         }
-        _ => format!("{} → {}", show_value(old), show_value(new)),
+        // Quoted, so a change of spaces alone can be seen: 'Heron  Pool' → 'Heron Pool'.
+        _ => format!("{} → {}", out::quoted(old), out::quoted(new)),
     }
 }
 

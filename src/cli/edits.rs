@@ -95,6 +95,7 @@ pub fn record(
         consulted: meta.consulted,
         allow_empty,
         despite: meta.despite,
+        by: cx.recorder()?,
     };
     let recorded = ledger::record_fix(&mut store, req, &now)?;
     let mut o = out::stdout();
@@ -476,6 +477,7 @@ pub fn decisions(cx: &CliContext, cmd: DecisionsCommand) -> Result<i32> {
     if lines.is_empty() {
         bail!("{} holds no decisions", path.display());
     }
+    let by = cx.recorder()?;
     let mut reqs = Vec::with_capacity(lines.len());
     {
         let store = cx.store()?;
@@ -548,6 +550,7 @@ pub fn decisions(cx: &CliContext, cmd: DecisionsCommand) -> Result<i32> {
                     consulted: a.meta.consulted.clone(),
                     allow_empty: a.allow_empty,
                     despite: a.meta.despite.clone(),
+                    by: by.clone(),
                 },
             ));
         }

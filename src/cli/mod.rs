@@ -105,6 +105,8 @@ enum Command {
     Carry(commit::CarryArgs),
     /// Sign and commit the pending fixes
     Commit(commit::CommitArgs),
+    /// Answer a carried conflict: apply the fix anyway, keep the source value, set another, or defer
+    Resolve(commit::ResolveArgs),
     /// List commits, newest last
     Log(show::LogArgs),
     /// Every changed cell, row and mark between two versions
@@ -216,6 +218,7 @@ fn run(cli: Cli) -> Result<i32> {
         Command::Check(a) => check::check(cx, a),
         Command::Carry(a) => commit::carry(cx, a),
         Command::Commit(a) => commit::commit(cx, a),
+        Command::Resolve(a) => commit::resolve(cx, a),
         Command::Log(a) => show::log(cx, a),
         Command::Export(a) => export::export(cx, a),
         Command::Diff(a) => diff::diff_cmd(cx, a),

@@ -191,15 +191,28 @@ pub fn clean(s: &str) -> std::borrow::Cow<'_, str> {
     )
 }
 
-/// Show a cell value for people: missing is `<missing>`.
+/// A value in a change shown to people: quoted, so spaces at either end and doubled spaces
+/// inside can be seen (`'Heron  Pool' → 'Heron Pool'`); missing is `(missing)`.
+pub fn quoted(v: &Option<String>) -> String {
+    match v {
+        Some(s) => format!("'{}'", clean(s)),
+        None => "(missing)".into(),
+    }
+}
+
+/// Show a cell value for people: missing is `(missing)`; a value with spaces at either end or
+/// doubled inside is quoted, so they can be seen.
 pub fn cell(v: &Option<String>) -> String {
     match v {
-        // Spaces at either end are invisible in a table: quote such a value.
-        Some(s) if s.starts_with(char::is_whitespace) || s.ends_with(char::is_whitespace) => {
-            format!("'{s}'")
+        Some(s)
+            if s.starts_with(char::is_whitespace)
+                || s.ends_with(char::is_whitespace)
+                || s.contains("  ") =>
+        {
+            format!("'{}'", clean(s))
         }
-        Some(s) => s.clone(),
-        None => "<missing>".into(),
+        Some(s) => clean(s).into_owned(),
+        None => "(missing)".into(),
     }
 }
 

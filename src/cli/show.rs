@@ -402,12 +402,12 @@ pub fn summary(body: &CommitBody) -> String {
         Change::Trust(t) => format!("trust key {} ({}): {}", fingerprint(&t.key), t.name, t.why),
         Change::Revoke(r) => format!("withdraw trust from key {}: {}", fingerprint(&r.key), r.why),
         Change::Fixes(list) => {
-            let cells: usize = list.iter().map(|r| r.edits.len()).sum();
+            let cells = emend::model::net_cells(list);
             format!(
                 "{} to {}, {} changed",
                 emend::model::quantity(list.len() as u64, "fix", "fixes"),
                 body.tables().join(", "),
-                emend::model::quantity(cells as u64, "cell", "cells")
+                emend::model::quantity(cells, "cell", "cells")
             )
         }
     }

@@ -228,5 +228,31 @@ pub fn why_cmd(cx: &CliContext, a: WhyArgs) -> Result<i32> {
         story.at_seq,
         paint(BOLD, show_value(&story.value))
     )?;
+    // A carried fix that met this cell changed at source: a decision still owed.
+    let open = reader.conflicts()?;
+    for (i, c) in open.iter().enumerate() {
+        if c.conflict.fix.table != story.table {
+            continue;
+        }
+        for x in &c.conflict.cells {
+            if x.row == story.row && x.column == story.column {
+                writeln!(
+                    o,
+                    "  {} {}: carried fix '{}' changed {} to {} on an earlier extract; this extract holds {}",
+                    paint(BAD, "open conflict"),
+                    i + 1,
+                    c.conflict.fix.action.describe(),
+                    super::out::quoted(&x.was),
+                    super::out::quoted(&x.fixed),
+                    super::out::quoted(&x.now)
+                )?;
+                writeln!(
+                    o,
+                    "    answer it with 'emend resolve {} --apply | --keep-source | --set VALUE | --defer --why \"...\"'",
+                    i + 1
+                )?;
+            }
+        }
+    }
     Ok(0)
 }

@@ -12,7 +12,7 @@ use super::apply::{FixApplier, RuleBook};
 use crate::error::{Error, Result};
 use crate::model::edit::Rows;
 use crate::model::{Change, Fix, FixAction, Origin, RowId};
-use crate::query::{Version, align_positions, decode, resolve};
+use crate::query::{Version, align_positions, decode};
 use crate::store::Store;
 use std::collections::{HashMap, HashSet};
 use std::ops::ControlFlow;
@@ -30,6 +30,8 @@ pub enum Outcome {
     RowGone,
     /// The column is not in the new extract.
     ColumnGone,
+    /// Carried onto this extract before, by the commit named (or still pending or open).
+    AlreadyCarried(Option<u64>),
 }
 
 impl Outcome {
@@ -41,6 +43,7 @@ impl Outcome {
             Outcome::Conflict => "conflict",
             Outcome::RowGone => "row gone",
             Outcome::ColumnGone => "column gone",
+            Outcome::AlreadyCarried(_) => "already carried",
         }
     }
 }
@@ -85,6 +88,13 @@ impl Carried {
 
     /// One line for `status`.
     pub fn note(&self) -> String {
+        match self.outcome {
+            Outcome::AlreadyCarried(Some(seq)) => {
+                return format!("carried before, in commit {seq}");
+            }
+            Outcome::AlreadyCarried(None) => return "carried before: an open conflict".into(),
+            _ => {}
+        }
         let mut parts = vec![format!("carried: {}", self.outcome.label())];
         for o in [
             Outcome::Applied,
@@ -123,6 +133,7 @@ pub fn carry(
     table: &str,
     from: Option<&str>,
     now: &str,
+    by: Option<&crate::model::Recorder>,
 ) -> Result<Vec<Carried>> {
     let tx = store.transaction()?;
     let reader = tx.read();
@@ -144,7 +155,7 @@ pub fn carry(
     }
     let upto = match from {
         Some(text) => {
-            let rev = resolve(&reader, text)?;
+            let rev = crate::query::resolve(&reader, text)?;
             if rev.raw || rev.seq >= new_seq {
                 return Err(Error::Invalid(format!(
                     "--from must name a commit before the newest extract (commit {new_seq})"
@@ -160,6 +171,33 @@ pub fn carry(
 
     // Fixes withdrawn by `upto` are not carried, and neither are the withdrawals.
     let withdrawn = crate::query::withdrawn_fixes(&reader, prev_seq, upto)?;
+    // What was carried onto the newest extract already: (origin seq, fix index) → the commit
+    // that signed it (None while it is an open conflict). A second carry changes nothing.
+    let mut carried_before: HashMap<(u64, u64), Option<u64>> = HashMap::new();
+    for seq in new_seq + 1..=head {
+        let Some(stored) = reader.try_commit(seq)? else {
+            continue;
+        };
+        if let Change::Fixes(list) = decode(&stored)?.change {
+            for r in list.iter().filter(|r| r.fix.table == table) {
+                if let Some(o) = r.fix.origins.last() {
+                    carried_before
+                        .entry((o.seq, o.fix_idx))
+                        .or_insert(Some(seq));
+                }
+            }
+        }
+    }
+    for c in reader
+        .conflicts()?
+        .iter()
+        .filter(|c| c.conflict.fix.table == table)
+    {
+        if let Some(o) = c.conflict.fix.origins.last() {
+            carried_before.entry((o.seq, o.fix_idx)).or_insert(None);
+        }
+    }
+    let mut skipped: Vec<Carried> = Vec::new();
     // The fixes to carry, in order, with where they came from.
     let mut fixes: Vec<(Fix, Vec<crate::model::CellEdit>)> = Vec::new();
     for seq in prev_seq + 1..=upto {
@@ -184,6 +222,16 @@ pub fn carry(
                     id: stored.id,
                     fix_idx: i as u64,
                 });
+                if let Some(&when) = carried_before.get(&(seq, i as u64)) {
+                    skipped.push(Carried {
+                        fix,
+                        outcome: Outcome::AlreadyCarried(when),
+                        cells: Vec::new(),
+                        matches_now: 0,
+                        new_matches: 0,
+                    });
+                    continue;
+                }
                 fixes.push((fix, r.edits));
             }
         }
@@ -360,6 +408,8 @@ pub fn carry(
                         .filter(|r| rows_seen.contains_key(r.as_str()) && !fixed.contains(r))
                         .collect();
                     if cells.iter().any(|c| c.outcome == Outcome::Conflict) {
+                        // Kept open with its rows in the new extract, to apply if so decided.
+                        *list = here;
                         Outcome::Conflict
                     } else if here.is_empty() && !fixed.is_empty() {
                         Outcome::FixedAtSource
@@ -396,10 +446,132 @@ pub fn carry(
         });
     }
     for c in &out {
-        if c.outcome == Outcome::Applied {
-            tx.add_pending(&c.fix, Some(&c.note()), now)?;
+        match c.outcome {
+            Outcome::Applied => {
+                tx.add_pending(&c.fix, Some(&c.note()), now, by)?;
+            }
+            // A conflict is a decision owed: kept open until resolved or deferred.
+            Outcome::Conflict => {
+                let conflict = crate::model::Conflict {
+                    fix: c.fix.clone(),
+                    cells: c
+                        .cells
+                        .iter()
+                        .filter(|cell| cell.outcome == Outcome::Conflict)
+                        .map(|cell| crate::model::ConflictCell {
+                            row: cell.row.clone(),
+                            column: cell.column.clone(),
+                            was: cell.was.clone(),
+                            fixed: cell.fixed.clone(),
+                            now: cell.now.clone(),
+                        })
+                        .collect(),
+                };
+                tx.add_conflict(&conflict, now)?;
+            }
+            _ => {}
         }
     }
     tx.commit()?;
+    out.extend(skipped);
+    out.sort_by_key(|c| c.fix.origins.last().map(|o| (o.seq, o.fix_idx)));
     Ok(out)
+}
+
+/// How the analyst answers a carried conflict.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Resolution {
+    /// Apply the carried fix anyway, to the value the new extract holds.
+    Apply,
+    /// Keep the new extract's value: a signed `keep` of the conflicting cells.
+    KeepSource,
+    /// Set the conflicting cells to this value (`None`: missing).
+    Set(Option<String>),
+    /// Decide later: a signed note on the conflicting cells, listed by the report.
+    Defer,
+}
+
+/// The fix that answers `conflict` in the way `how`, with the reason `why` and the carried
+/// fix's origins (so `why` shows where the decision came from).
+pub fn answer(conflict: &crate::model::Conflict, how: &Resolution, why: &str) -> Fix {
+    let rows: Vec<RowId> = {
+        let mut seen = HashSet::new();
+        conflict
+            .cells
+            .iter()
+            .filter(|c| seen.insert(c.row.clone()))
+            .map(|c| c.row.clone())
+            .collect()
+    };
+    let column = conflict
+        .cells
+        .first()
+        .map(|c| c.column.clone())
+        .or_else(|| conflict.fix.action.column().map(str::to_owned))
+        .unwrap_or_default();
+    let action = match how {
+        Resolution::Apply => conflict.fix.action.clone(),
+        Resolution::KeepSource => FixAction::Keep {
+            column,
+            rows: Rows::Listed(rows),
+            resolved: Vec::new(),
+        },
+        Resolution::Set(v) => FixAction::Edit {
+            column,
+            rows: Rows::Listed(rows),
+            transform: crate::model::edit::Transform::Value(v.clone()),
+        },
+        Resolution::Defer => FixAction::Note {
+            column: Some(column),
+            rows: Rows::Listed(rows),
+            resolved: Vec::new(),
+        },
+    };
+    let why = match how {
+        Resolution::Defer => format!(
+            "carried conflict left open ({}): {why}",
+            conflict.fix.action.describe()
+        ),
+        _ => why.trim().to_owned(),
+    };
+    Fix {
+        table: conflict.fix.table.clone(),
+        action,
+        why,
+        evidence: Vec::new(),
+        consulted: None,
+        origins: conflict.fix.origins.clone(),
+    }
+}
+
+/// Answer the `n`th open conflict (1-based, as `status` numbers them): records the answering
+/// fix as pending and closes the conflict (discarding that fix opens it again).
+pub fn resolve_conflict(
+    store: &mut Store,
+    n: usize,
+    how: Resolution,
+    why: &str,
+    now: &str,
+    by: Option<&crate::model::Recorder>,
+) -> Result<Fix> {
+    if why.trim().is_empty() {
+        return Err(Error::EmptyReason);
+    }
+    let tx = store.transaction()?;
+    let open = tx.read().conflicts()?;
+    let Some(c) = n.checked_sub(1).and_then(|i| open.get(i)) else {
+        return Err(Error::Invalid(format!(
+            "there is no open conflict {n}: {} open ('emend status' lists them)",
+            open.len()
+        )));
+    };
+    let fix = answer(&c.conflict, &how, why);
+    let note = format!(
+        "answers a carried conflict: {}",
+        c.conflict.fix.action.describe()
+    );
+    tx.add_pending_resolving(&fix, Some(&note), now, by, Some(&c.conflict))?;
+    tx.drop_conflict(c.id)?;
+    tx.commit()?;
+    Ok(fix)
 }

@@ -33,6 +33,8 @@ pub struct FixRequest {
     /// A rule of the rules in force that the new values may break on purpose (`ph.hard`);
     /// named in the recorded reason.
     pub despite: Option<String>,
+    /// Who records it: only they may commit it.
+    pub by: Option<crate::model::Recorder>,
 }
 
 /// What a fix would do to the latest version, found in one pass when it is recorded.
@@ -407,6 +409,7 @@ fn record_in(tx: &WriteTx<'_>, mut req: FixRequest, now: &str) -> Result<Recorde
             n_bytes,
         });
     }
+    let by = req.by;
     let fix = Fix {
         table: req.table,
         action: req.action,
@@ -443,7 +446,7 @@ fn record_in(tx: &WriteTx<'_>, mut req: FixRequest, now: &str) -> Result<Recorde
         }
         text
     });
-    tx.add_pending(&fix, effect.as_deref(), now)?;
+    tx.add_pending(&fix, effect.as_deref(), now, by.as_ref())?;
     Ok(Recorded {
         fix,
         note,
@@ -585,6 +588,18 @@ pub fn commit_pending(
     message: &str,
     ctx: &CommitContext<'_>,
 ) -> Result<CommitOutcome> {
+    commit_pending_deferring(store, message, ctx, false)
+}
+
+/// Commit every pending fix as one signed commit; refused while a carried conflict is open,
+/// unless `defer` records each as deferred (a signed note on its cells) in the same commit.
+/// Refused, too, when another person recorded some of the pending fixes: they sign their own.
+pub fn commit_pending_deferring(
+    store: &mut Store,
+    message: &str,
+    ctx: &CommitContext<'_>,
+    defer: bool,
+) -> Result<CommitOutcome> {
     if message.trim().is_empty() {
         return Err(Error::Invalid(
             "a commit needs a message: -m \"...\"".into(),
@@ -592,7 +607,50 @@ pub fn commit_pending(
     }
     let tx = store.transaction()?;
     let reader = tx.read();
-    let pending = reader.pending()?;
+    let mut pending = reader.pending()?;
+    let signer = ctx.signer.public_key();
+    let others: Vec<String> = pending
+        .iter()
+        .enumerate()
+        .filter_map(|(i, p)| {
+            let by = p.by.as_ref()?;
+            (by.key != signer).then(|| format!("{} (recorded by {})", i + 1, by.name))
+        })
+        .collect();
+    if !others.is_empty() {
+        return Err(Error::Invalid(format!(
+            "pending fixes {} were recorded by someone else; each person commits their own fixes (or drops one with 'emend discard N')",
+            others.join(", ")
+        )));
+    }
+    let conflicts = reader.conflicts()?;
+    if !conflicts.is_empty() && !defer {
+        return Err(Error::Invalid(format!(
+            "{} open; answer each with 'emend resolve N --apply | --keep-source | --set VALUE | --defer --why ...' ('emend status' lists them), or commit with --defer-conflicts to record them all as deferred",
+            crate::model::quantity(
+                conflicts.len() as u64,
+                "carried conflict is",
+                "carried conflicts are"
+            )
+        )));
+    }
+    let ids: Vec<i64> = pending.iter().map(|p| p.id).collect();
+    for c in &conflicts {
+        let fix = super::carry::answer(
+            &c.conflict,
+            &super::carry::Resolution::Defer,
+            "deferred at commit",
+        );
+        pending.push(crate::store::PendingFix {
+            id: 0,
+            fix,
+            added_at: ctx.now.clone(),
+            note: None,
+            by: None,
+            resolves_conflict: true,
+        });
+        tx.drop_conflict(c.id)?;
+    }
     if pending.is_empty() {
         return Err(Error::NothingPending);
     }
@@ -630,7 +688,7 @@ pub fn commit_pending(
         .map(|r| r.expect("every pending fix belongs to one table"))
         .collect();
     let done = seal(&tx, ctx, message.trim(), Change::Fixes(records), versions)?;
-    tx.clear_pending()?;
+    tx.commit_pending_rows(&ids)?;
     tx.commit()?;
     Ok(done)
 }
@@ -701,6 +759,7 @@ mod tests {
             consulted: None,
             allow_empty: false,
             despite: None,
+            by: None,
         };
         let key = record_fix(
             &mut kit.store,

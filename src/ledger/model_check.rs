@@ -237,6 +237,7 @@ fn random_conditions_transforms_and_withdrawals_rebuild_to_the_model() {
                     consulted: None,
                     allow_empty: true,
                     despite: None,
+                    by: None,
                 };
                 record_fix(&mut store, req, NOW).unwrap();
                 pending.push(action);

@@ -65,6 +65,7 @@ impl Kit {
             consulted: None,
             allow_empty: false,
             despite: None,
+            by: None,
         };
         record_fix(&mut self.store, req, NOW).expect("record fix");
     }

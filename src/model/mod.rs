@@ -400,6 +400,56 @@ pub struct Origin {
     pub fix_idx: u64,
 }
 
+/// Who recorded a pending fix: the key and name of the identity in use then.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Recorder {
+    /// The Ed25519 public key.
+    pub key: [u8; 32],
+    /// The identity's name.
+    pub name: String,
+}
+
+/// A carried fix that met cells changed at source to something else: not applied, kept open
+/// until the analyst decides (apply it anyway, keep the source value, set another, or defer).
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Conflict {
+    /// The fix as it would be carried (rows mapped to the new extract, with its origins).
+    pub fix: Fix,
+    /// The cells that conflict.
+    pub cells: Vec<ConflictCell>,
+}
+
+/// One conflicting cell: the value the fix replaced, the value it set, the value now.
+#[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct ConflictCell {
+    /// Row (in the new extract).
+    pub row: RowId,
+    /// Column.
+    pub column: String,
+    /// The value the fix replaced on the earlier extract.
+    pub was: Option<String>,
+    /// The value the fix set.
+    pub fixed: Option<String>,
+    /// The value in the new extract.
+    pub now: Option<String>,
+}
+
+/// How many distinct cells a list of fix records changes, net: a cell set twice counts once,
+/// and a cell changed and changed back counts not at all.
+pub fn net_cells(records: &[FixRecord]) -> u64 {
+    // Per cell: the value before the first edit and after the last.
+    type Ends<'a> = (&'a Option<String>, &'a Option<String>);
+    let mut first_last: std::collections::HashMap<(&RowId, &str), Ends<'_>> =
+        std::collections::HashMap::new();
+    for e in records.iter().flat_map(|r| &r.edits) {
+        first_last
+            .entry((&e.row, e.column.as_str()))
+            .and_modify(|(_, last)| *last = &e.new)
+            .or_insert((&e.old, &e.new));
+    }
+    first_last.values().filter(|(old, new)| old != new).count() as u64
+}
+
 /// One cell changed by a fix, with the value before and after. `None` is missing.
 #[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
 pub struct CellEdit {

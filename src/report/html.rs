@@ -265,12 +265,7 @@ fn write_cover(view: &ReportView, out: &mut dyn Write) -> io::Result<()> {
         Esc(&view.extract.file_name)
     )?;
     let n_fixes: usize = view.commits.iter().map(|c| c.fixes.len()).sum();
-    let n_cells: u64 = view
-        .commits
-        .iter()
-        .flat_map(|c| &c.fixes)
-        .map(|f| f.n_cells)
-        .sum();
+    let n_cells = view.cells_changed;
     writeln!(out, r#"<dl class="glance">"#)?;
     for (label, n) in [
         ("commits", view.commits.len() as u64),

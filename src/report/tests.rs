@@ -118,6 +118,8 @@ fn view_with(s: &dyn Fn(&str) -> String) -> ReportView {
             checked: s("verify_checked"),
             problems: vec![s("verify_problem")],
         },
+        // The two fixes below change different cells: 1234 + 1.
+        cells_changed: 1235,
         commits: vec![
             CommitView {
                 seq: 1,

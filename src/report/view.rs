@@ -24,6 +24,9 @@ pub struct ReportView {
     pub verify: VerifyView,
     /// Every commit up to this version, oldest first.
     pub commits: Vec<CommitView>,
+    /// Distinct cells whose value at this version differs from the extract's, net of cells
+    /// changed twice or changed back.
+    pub cells_changed: u64,
     /// Rows excluded at this version, with reasons.
     pub excluded_rows: Vec<MarkView>,
     /// Columns distrusted at this version, with reasons.

@@ -17,7 +17,7 @@ mod write;
 pub use blob::{BlobReader, ChunkCache};
 pub use codec::{Codec, DeltaBase, EncodedPiece, PIECE_SIZE, PieceEncoder};
 pub use index::{CellEditRow, IndexRows, MarkRow};
-pub use read::{PendingFix, Reader, SignerRecord, StoredCommit, TrustList, row_text};
+pub use read::{OpenConflict, PendingFix, Reader, SignerRecord, StoredCommit, TrustList, row_text};
 pub use write::WriteTx;
 use write::sql_err_busy;
 
@@ -52,8 +52,18 @@ const MIGRATIONS: &[&str] = &[
     ALTER TABLE mark_v2 RENAME TO mark;",
     // 2 → 3: when each signer's trust begins and ends (filled from the trust commits by
     // `date_signers` after this step).
+    // Also: who recorded each pending fix, and carried conflicts kept open.
     "ALTER TABLE signer ADD COLUMN since_seq INTEGER NOT NULL DEFAULT 0;
-    ALTER TABLE signer ADD COLUMN revoked_from INTEGER;",
+    ALTER TABLE signer ADD COLUMN revoked_from INTEGER;
+    ALTER TABLE pending ADD COLUMN author_key BLOB;
+    ALTER TABLE pending ADD COLUMN author_name TEXT;
+    ALTER TABLE pending ADD COLUMN reopens BLOB;
+    CREATE TABLE open_conflict (
+        id       INTEGER PRIMARY KEY AUTOINCREMENT,
+        tbl      TEXT NOT NULL,
+        conflict BLOB NOT NULL,
+        added_at TEXT NOT NULL
+    ) STRICT;",
 ];
 /// For a store made before schema v3: a signer first trusted by a trust commit is trusted from
 /// that commit on (its row was written with that commit's time); the others are the store's
@@ -297,6 +307,7 @@ mod tests {
                  ) STRICT, WITHOUT ROWID;
                  DROP TABLE signer;
                  CREATE TABLE signer (key BLOB PRIMARY KEY, name TEXT NOT NULL, email TEXT, added_at TEXT NOT NULL) STRICT;
+                 DROP TABLE open_conflict; DROP TABLE pending; CREATE TABLE pending (id INTEGER PRIMARY KEY AUTOINCREMENT, tbl TEXT NOT NULL, fix BLOB NOT NULL, note TEXT, added_at TEXT NOT NULL) STRICT;
                  INSERT INTO commit_log (seq, id, body, signature) VALUES (1, x'00', x'00', x'00');
                  INSERT INTO mark VALUES ('samples', 'exclude', 'S-1', 1, 0);
                  PRAGMA user_version = 1;",

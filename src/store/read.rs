@@ -7,7 +7,7 @@ use super::codec::{self, Codec};
 use super::index::{CellEditRow, IndexRows, MarkRow};
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, ChunkId, CommitId};
-use crate::model::{Fix, RowId};
+use crate::model::{Conflict, Fix, Recorder, RowId};
 use rusqlite::{Connection, OptionalExtension, params};
 use std::path::Path;
 use std::rc::Rc;
@@ -36,6 +36,21 @@ pub struct PendingFix {
     pub added_at: String,
     /// A note for `status` (the outcome of a carried fix).
     pub note: Option<String>,
+    /// Who recorded it (none when recorded without an identity).
+    pub by: Option<Recorder>,
+    /// Whether it answers a carried conflict.
+    pub resolves_conflict: bool,
+}
+
+/// A carried conflict kept open, with its number for `emend resolve`.
+#[derive(Debug, Clone)]
+pub struct OpenConflict {
+    /// Its id (the number `status` shows).
+    pub id: i64,
+    /// The conflict.
+    pub conflict: Conflict,
+    /// When carry found it.
+    pub added_at: String,
 }
 
 /// A trusted signer.
@@ -383,25 +398,67 @@ impl<'a> Reader<'a> {
     pub fn pending(&self) -> Result<Vec<PendingFix>> {
         let mut stmt = self
             .conn
-            .prepare("SELECT id, fix, added_at, note FROM pending ORDER BY id")?;
+            .prepare("SELECT id, fix, added_at, note, author_key, author_name, reopens IS NOT NULL FROM pending ORDER BY id")?;
         let rows = stmt.query_map([], |r| {
             Ok((
                 r.get::<_, i64>(0)?,
                 r.get::<_, Vec<u8>>(1)?,
                 r.get::<_, String>(2)?,
                 r.get::<_, Option<String>>(3)?,
+                r.get::<_, Option<Vec<u8>>>(4)?,
+                r.get::<_, Option<String>>(5)?,
+                r.get::<_, bool>(6)?,
             ))
         })?;
         let mut out = Vec::new();
         for row in rows {
-            let (id, bytes, added_at, note) = row?;
+            let (id, bytes, added_at, note, key, name, resolves_conflict) = row?;
             let fix: Fix = postcard::from_bytes(&bytes)
                 .map_err(|e| Error::Corrupt(format!("pending fix {id} does not decode: {e}")))?;
+            let by = match (key, name) {
+                (Some(k), Some(name)) => Some(Recorder {
+                    key: k.try_into().map_err(|_| {
+                        Error::Corrupt(format!(
+                            "pending fix {id}: its recorder's key is not 32 bytes"
+                        ))
+                    })?,
+                    name,
+                }),
+                _ => None,
+            };
             out.push(PendingFix {
                 id,
                 fix,
                 added_at,
                 note,
+                by,
+                resolves_conflict,
+            });
+        }
+        Ok(out)
+    }
+
+    /// Carried conflicts still open, in the order carry found them.
+    pub fn conflicts(&self) -> Result<Vec<OpenConflict>> {
+        let mut stmt = self
+            .conn
+            .prepare("SELECT id, conflict, added_at FROM open_conflict ORDER BY id")?;
+        let rows = stmt.query_map([], |r| {
+            Ok((
+                r.get::<_, i64>(0)?,
+                r.get::<_, Vec<u8>>(1)?,
+                r.get::<_, String>(2)?,
+            ))
+        })?;
+        let mut out = Vec::new();
+        for row in rows {
+            let (id, bytes, added_at) = row?;
+            let conflict: Conflict = postcard::from_bytes(&bytes)
+                .map_err(|e| Error::Corrupt(format!("open conflict {id} does not decode: {e}")))?;
+            out.push(OpenConflict {
+                id,
+                conflict,
+                added_at,
             });
         }
         Ok(out)

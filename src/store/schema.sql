@@ -63,10 +63,22 @@ CREATE TABLE signer (
 
 -- Fixes recorded but not yet committed, in the order they were recorded.
 CREATE TABLE pending (
+    id          INTEGER PRIMARY KEY AUTOINCREMENT,
+    tbl         TEXT NOT NULL,
+    fix         BLOB NOT NULL,   -- postcard of model::Fix
+    note        TEXT,            -- e.g. the outcome of a carried fix
+    added_at    TEXT NOT NULL,
+    author_key  BLOB,            -- who recorded it (none when recorded without an identity)
+    author_name TEXT,
+    reopens     BLOB             -- the carried conflict it resolves, back to open if discarded
+) STRICT;
+
+-- Carried fixes whose cell changed at source to something else: decisions owed, listed by
+-- `status` until resolved (`emend resolve`) or deferred at commit.
+CREATE TABLE open_conflict (
     id       INTEGER PRIMARY KEY AUTOINCREMENT,
     tbl      TEXT NOT NULL,
-    fix      BLOB NOT NULL,   -- postcard of model::Fix
-    note     TEXT,            -- e.g. the outcome of a carried fix
+    conflict BLOB NOT NULL,      -- postcard of model::Conflict
     added_at TEXT NOT NULL
 ) STRICT;
 

@@ -6,8 +6,8 @@ use super::index::IndexRows;
 use super::read::Reader;
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, ChunkId, CommitId};
-use crate::model::{CommitBody, Fix};
-use rusqlite::params;
+use crate::model::{CommitBody, Conflict, Fix, Recorder};
+use rusqlite::{OptionalExtension, params};
 
 /// One all-or-nothing write. Dropped without [`WriteTx::commit`], nothing changes.
 pub struct WriteTx<'s> {
@@ -130,23 +130,101 @@ impl WriteTx<'_> {
     }
 
     /// Record a fix as pending, with an optional note for `status`.
-    pub fn add_pending(&self, fix: &Fix, note: Option<&str>, now: &str) -> Result<i64> {
+    pub fn add_pending(
+        &self,
+        fix: &Fix,
+        note: Option<&str>,
+        now: &str,
+        by: Option<&Recorder>,
+    ) -> Result<i64> {
+        self.add_pending_resolving(fix, note, now, by, None)
+    }
+
+    /// Record a pending fix that resolves a carried conflict: discarding it opens the conflict
+    /// again.
+    pub fn add_pending_resolving(
+        &self,
+        fix: &Fix,
+        note: Option<&str>,
+        now: &str,
+        by: Option<&Recorder>,
+        reopens: Option<&Conflict>,
+    ) -> Result<i64> {
         let bytes = postcard::to_stdvec(fix)?;
+        let reopens = reopens.map(postcard::to_stdvec).transpose()?;
         self.tx.execute(
-            "INSERT INTO pending (tbl, fix, note, added_at) VALUES (?1, ?2, ?3, ?4)",
-            params![fix.table, bytes, note, now],
+            "INSERT INTO pending (tbl, fix, note, added_at, author_key, author_name, reopens)
+             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+            params![
+                fix.table,
+                bytes,
+                note,
+                now,
+                by.map(|b| b.key.to_vec()),
+                by.map(|b| b.name.as_str()),
+                reopens
+            ],
         )?;
         Ok(self.tx.last_insert_rowid())
     }
 
-    /// Drop every pending fix; returns how many there were.
+    /// Drop every pending fix; returns how many there were. Conflicts they resolved open again.
     pub fn clear_pending(&self) -> Result<usize> {
-        Ok(self.tx.execute("DELETE FROM pending", [])?)
+        let pending = self.read().pending()?;
+        for p in &pending {
+            self.drop_pending(p.id)?;
+        }
+        Ok(pending.len())
     }
 
-    /// Drop one pending fix by its id; whether it was there.
+    /// Drop one pending fix by its id; whether it was there. A conflict it resolved opens again.
     pub fn drop_pending(&self, id: i64) -> Result<bool> {
+        let reopens: Option<Option<Vec<u8>>> = self
+            .tx
+            .query_row("SELECT reopens FROM pending WHERE id = ?1", [id], |r| {
+                r.get(0)
+            })
+            .optional()?;
+        if let Some(Some(bytes)) = reopens {
+            let conflict: Conflict = postcard::from_bytes(&bytes).map_err(|e| {
+                Error::Corrupt(format!(
+                    "pending fix {id}: its conflict does not decode: {e}"
+                ))
+            })?;
+            let at: String =
+                self.tx
+                    .query_row("SELECT added_at FROM pending WHERE id = ?1", [id], |r| {
+                        r.get(0)
+                    })?;
+            self.add_conflict(&conflict, &at)?;
+        }
         Ok(self.tx.execute("DELETE FROM pending WHERE id = ?1", [id])? == 1)
+    }
+
+    /// Drop pending fixes once committed (their conflicts are answered for good).
+    pub fn commit_pending_rows(&self, ids: &[i64]) -> Result<()> {
+        for id in ids {
+            self.tx.execute("DELETE FROM pending WHERE id = ?1", [id])?;
+        }
+        Ok(())
+    }
+
+    /// Keep a carried conflict open.
+    pub fn add_conflict(&self, conflict: &Conflict, now: &str) -> Result<i64> {
+        let bytes = postcard::to_stdvec(conflict)?;
+        self.tx.execute(
+            "INSERT INTO open_conflict (tbl, conflict, added_at) VALUES (?1, ?2, ?3)",
+            params![conflict.fix.table, bytes, now],
+        )?;
+        Ok(self.tx.last_insert_rowid())
+    }
+
+    /// Close a carried conflict (its answer is recorded as a pending fix, or deferred).
+    pub fn drop_conflict(&self, id: i64) -> Result<bool> {
+        Ok(self
+            .tx
+            .execute("DELETE FROM open_conflict WHERE id = ?1", [id])?
+            == 1)
     }
 
     /// Trust a signer (no change when it is listed already): a root of the store's trust when

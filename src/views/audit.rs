@@ -206,6 +206,7 @@ pub fn report_view(
     let trusted = reader.trust_list()?;
     let upto = if rev.raw { after.ingest_seq } else { rev.seq };
     let mut commits = Vec::new();
+    let mut all_records: Vec<crate::model::FixRecord> = Vec::new();
     let mut excluded = Vec::new();
     let mut distrusted = Vec::new();
     let mut head = None;
@@ -218,6 +219,9 @@ pub fn report_view(
         let body = decode(&stored)?;
         if seq == upto {
             head = Some((stored.id, body.time.clone()));
+        }
+        if let Change::Fixes(list) = &body.change {
+            all_records.extend(list.iter().filter(|r| r.fix.table == table).cloned());
         }
         let fixes: Vec<FixView> = match &body.change {
             Change::Fixes(list) => list
@@ -374,6 +378,7 @@ pub fn report_view(
                 .collect(),
         },
         commits,
+        cells_changed: crate::model::net_cells(&all_records),
         excluded_rows: excluded,
         distrusted_columns: distrusted,
         columns,

@@ -88,8 +88,59 @@ fn every_outcome_and_a_chain_of_origins() {
             .contains("carried: applied")
     );
     dir.cmd(["status"]).ok().says(&["carried from commit 2"]);
+
+    // Issue 15: the conflict stays open, a decision owed: status lists it, why shows it,
+    // commit refuses until it is answered (or deferred).
+    let status = dir.cmd(["status", "--json"]).ok().json();
+    assert_eq!(
+        status["conflicts"][0]["cells"][0]["now"], "65",
+        "{status:#}"
+    );
+    dir.cmd(["status"]).ok().says(&[
+        "1 open conflict",
+        "conflict 1. set C",
+        "the new extract holds '65'",
+    ]);
+    dir.cmd(["why", "s", "C", "ph"])
+        .ok()
+        .says(&["open conflict 1", "emend resolve 1"]);
+    dir.cmd(["commit", "-m", "October decisions carried to November"])
+        .fails(&[
+            "1 carried conflict is open",
+            "emend resolve N",
+            "--defer-conflicts",
+        ]);
+    // Answered, the conflict closes; discarding the answer opens it again.
+    dir.cmd(["resolve", "2", "--keep-source", "--why", "x"])
+        .fails(&["no open conflict 2"]);
+    dir.cmd([
+        "resolve",
+        "1",
+        "--keep-source",
+        "--why",
+        "the lab re-ran it: 65 is right",
+    ])
+    .ok()
+    .says(&["answered conflict 1", "keep ph as it is in rows C"]);
+    dir.cmd(["status"]).ok().says(&["3 pending fixes"]);
+    dir.cmd(["discard", "3"]).ok();
+    dir.cmd(["status"]).ok().says(&["1 open conflict"]);
+    dir.cmd([
+        "resolve",
+        "1",
+        "--set",
+        "6.5",
+        "--why",
+        "decimal slipped again",
+    ])
+    .ok();
     dir.cmd(["commit", "-m", "October decisions carried to November"])
         .ok();
+    dir.cmd(["why", "s", "C", "ph"]).ok().says(&[
+        "'65' → '6.5'",
+        "decimal slipped again",
+        "carried from commit 2",
+    ]);
     let d = dir
         .cmd(["diff", "s", "raw", "latest", "--json"])
         .ok()
@@ -100,7 +151,30 @@ fn every_outcome_and_a_chain_of_origins() {
         .iter()
         .map(|x| x["row"].as_str().unwrap())
         .collect();
-    assert_eq!(changed, ["A", "F", "G"]);
+    assert_eq!(changed, ["A", "C", "F", "G"]);
+    // Run again after the commit: nothing is queued twice, and it says so.
+    dir.cmd(["carry", "s"])
+        .ok()
+        .says(&["nothing to carry", "commit 5"]);
+    let again = dir.cmd(["carry", "s", "--json"]).ok().json();
+    let outcomes: Vec<&str> = again["fixes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|f| f["outcome"].as_str().unwrap())
+        .collect();
+    assert_eq!(
+        outcomes,
+        [
+            "already carried",
+            "fixed at source",
+            "already carried",
+            "row gone",
+            "already carried"
+        ],
+        "{again:#}"
+    );
+    dir.cmd(["status"]).ok().says(&["no pending fixes"]);
     // December: carried again; why shows both origins.
     dir.write(
         "dec.csv",

@@ -199,7 +199,7 @@ fn each_decision_is_recorded_signed_traced_and_carried() {
     // why: the transform's cell, the value kept on purpose, the note.
     dir.cmd(["why", "s", "RW-01", "lon"])
         .ok()
-        .says(&["112.5 → -112.5", "sign flipped by the app"]);
+        .says(&["'112.5' → '-112.5'", "sign flipped by the app"]);
     dir.cmd(["why", "s", "RW-05", "notes"])
         .ok()
         .says(&["kept on purpose", "checked with the volunteer"]);
@@ -466,8 +466,8 @@ fn a_withdrawn_fix_leaves_the_version_without_it() {
     );
     dir.cmd(["verify"]).ok().says(&["intact"]);
     dir.cmd(["why", "s", "RW-02", "ph"]).ok().says(&[
-        "71 → 7.1",
-        "7.1 → 71",
+        "'71' → '7.1'",
+        "'7.1' → '71'",
         "the expert corrected herself",
     ]);
     dir.cmd(["diff", "s", "2", "3"])

@@ -13,6 +13,7 @@ mod decisions;
 mod demo;
 mod faults;
 mod findings;
+mod history;
 mod hostile;
 mod identity;
 mod keys;

@@ -113,7 +113,7 @@ fn main_scenario_walkthrough() {
 
     // Status lists the pending fixes with their reasons; nothing is committed yet.
     let status = dir.cmd(["status"]).ok().stdout();
-    assert!(status.contains("at commit 1"), "{status}");
+    assert!(status.contains("latest commit 1"), "{status}");
     assert!(status.contains("6 pending fixes"), "{status}");
     for needle in [
         "why: lab sheet says 7.1",
@@ -138,7 +138,7 @@ fn main_scenario_walkthrough() {
         .says(&["signed commit 2", "6 fixes", "6 cells changed"]);
     let status = dir.cmd(["status"]).ok().stdout();
     assert!(
-        status.contains("at commit 2") && status.contains("no pending fixes"),
+        status.contains("latest commit 2") && status.contains("no pending fixes"),
         "{status}"
     );
 
