@@ -128,7 +128,7 @@ footer{margin-top:3rem;padding-top:.75rem;border-top:2px solid var(--ink);font-s
 /// #     version: VersionView { seq: 1, id: "cd".repeat(32), label: "latest".into(),
 /// #         time: "2025-03-01T09:00:00Z".into(), version_hash: "ef".repeat(32) },
 /// #     verify: VerifyView { intact: true, checked: "1 commit".into(), problems: vec![] },
-/// #     commits: vec![], excluded_rows: vec![], distrusted_columns: vec![],
+/// #     commits: vec![], cells_changed: 0, excluded_rows: vec![], distrusted_columns: vec![],
 /// #     columns: vec![], open_problems: vec![],
 /// # };
 /// let mut html = Vec::new();
