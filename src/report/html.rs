@@ -128,7 +128,8 @@ footer{margin-top:3rem;padding-top:.75rem;border-top:2px solid var(--ink);font-s
 /// #     version: VersionView { seq: 1, id: "cd".repeat(32), label: "latest".into(),
 /// #         time: "2025-03-01T09:00:00Z".into(), version_hash: "ef".repeat(32) },
 /// #     verify: VerifyView { intact: true, checked: "1 commit".into(), problems: vec![] },
-/// #     commits: vec![], cells_changed: 0, excluded_rows: vec![], distrusted_columns: vec![],
+/// #     commits: vec![], cells_changed: 0, kept: vec![], noted: vec![], conflicts: vec![],
+/// #     excluded_rows: vec![], distrusted_columns: vec![],
 /// #     columns: vec![], open_problems: vec![],
 /// # };
 /// let mut html = Vec::new();
@@ -293,7 +294,7 @@ fn write_toc(view: &ReportView, out: &mut dyn Write) -> io::Result<()> {
     )?;
     writeln!(
         out,
-        r##"<li><a href="#marks">Excluded rows and distrusted columns</a></li>"##
+        r##"<li><a href="#marks">Excluded rows, distrusted columns, kept values and notes</a></li>"##
     )?;
     writeln!(
         out,
@@ -392,8 +393,9 @@ fn write_decisions(view: &ReportView, out: &mut dyn Write) -> io::Result<()> {
     )?;
     writeln!(
         out,
-        "<p>Every commit up to this version, oldest first. Each fix carries the reason recorded \
-         with it, inside the signed commit.</p>"
+        "<p>The table's whole history up to this version, extract by extract, oldest first. Each \
+         fix carries the reason recorded with it, inside the signed commit, and says where it \
+         was carried from and to.</p>"
     )?;
     if view.commits.is_empty() {
         writeln!(out, "<p>No commits.</p>")?;
@@ -440,7 +442,9 @@ fn write_commit(c: &CommitView, out: &mut dyn Write) -> io::Result<()> {
     row_th(out, "Commit id")?;
     writeln!(out, r#"<span class="hash">{}</span></td></tr>"#, Esc(&c.id))?;
     writeln!(out, "</tbody></table>")?;
-    if c.fixes.is_empty() {
+    if let Some(s) = &c.summary {
+        writeln!(out, r#"<p class="receipt">{}</p>"#, Esc(s))?;
+    } else if c.fixes.is_empty() {
         writeln!(out, "<p>No fixes in this commit.</p>")?;
     }
     for (i, f) in c.fixes.iter().enumerate() {
@@ -465,6 +469,9 @@ fn write_fix(seq: u64, n: usize, f: &FixView, out: &mut dyn Write) -> io::Result
         r#"<p class="why"><strong>Why:</strong> {}</p>"#,
         Esc(&f.why)
     )?;
+    if let Some(c) = &f.carried {
+        writeln!(out, r#"<p class="carried">{}</p>"#, Esc(c))?;
+    }
     match &f.consulted {
         Some(who) => writeln!(out, "<p><strong>Consulted:</strong> {}</p>", Esc(who))?,
         None => writeln!(
@@ -559,8 +566,25 @@ fn write_marks(view: &ReportView, out: &mut dyn Write) -> io::Result<()> {
     writeln!(out, r#"<section aria-labelledby="marks">"#)?;
     writeln!(
         out,
-        r#"<h2 id="marks"><span class="no">3</span>Excluded rows and distrusted columns</h2>"#
+        r#"<h2 id="marks"><span class="no">3</span>Excluded rows, distrusted columns, kept values and notes</h2>"#
     )?;
+    writeln!(
+        out,
+        r#"<h3 id="owed">Decisions owed ({})</h3>"#,
+        view.conflicts.len()
+    )?;
+    if view.conflicts.is_empty() {
+        writeln!(
+            out,
+            "<p>No carried conflict is open or deferred at this version.</p>"
+        )?;
+    } else {
+        writeln!(out, r#"<ul class="owed">"#)?;
+        for c in &view.conflicts {
+            writeln!(out, "<li>{}</li>", Esc(c))?;
+        }
+        writeln!(out, "</ul>")?;
+    }
     write_mark_table(
         out,
         "Excluded rows",
@@ -574,6 +598,20 @@ fn write_marks(view: &ReportView, out: &mut dyn Write) -> io::Result<()> {
         "Column",
         &view.distrusted_columns,
         "No columns are distrusted at this version.",
+    )?;
+    write_mark_table(
+        out,
+        "Values kept on purpose",
+        "Cell",
+        &view.kept,
+        "No value is marked as kept at this version.",
+    )?;
+    write_mark_table(
+        out,
+        "Notes for review",
+        "Cell or row",
+        &view.noted,
+        "No notes at this version.",
     )?;
     writeln!(out, "</section>")
 }

@@ -120,6 +120,9 @@ fn view_with(s: &dyn Fn(&str) -> String) -> ReportView {
         },
         // The two fixes below change different cells: 1234 + 1.
         cells_changed: 1235,
+        kept: vec![],
+        noted: vec![],
+        conflicts: vec![],
         commits: vec![
             CommitView {
                 seq: 1,
@@ -131,6 +134,7 @@ fn view_with(s: &dyn Fn(&str) -> String) -> ReportView {
                 time: s("time1"),
                 message: s("message1"),
                 kind: s("kind1"),
+                summary: None,
                 fixes: vec![],
             },
             CommitView {
@@ -143,10 +147,12 @@ fn view_with(s: &dyn Fn(&str) -> String) -> ReportView {
                 time: s("time2"),
                 message: s("message2"),
                 kind: s("kind2"),
+                summary: None,
                 fixes: vec![
                     FixView {
                         kind: s("fixkind_a"),
                         description: s("description_a"),
+                        carried: None,
                         why: s("why_a"),
                         consulted: Some(s("consulted_a")),
                         evidence: vec![EvidenceView {
@@ -160,6 +166,7 @@ fn view_with(s: &dyn Fn(&str) -> String) -> ReportView {
                     FixView {
                         kind: s("fixkind_b"),
                         description: s("description_b"),
+                        carried: None,
                         why: s("why_b"),
                         consulted: None,
                         evidence: vec![],
@@ -183,9 +190,11 @@ fn view_with(s: &dyn Fn(&str) -> String) -> ReportView {
                 time: s("time3"),
                 message: s("message3"),
                 kind: s("kind3"),
+                summary: None,
                 fixes: vec![FixView {
                     kind: s("fixkind_c"),
                     description: s("description_c"),
+                    carried: None,
                     why: s("why_c"),
                     consulted: None,
                     evidence: vec![],

@@ -27,6 +27,12 @@ pub struct ReportView {
     /// Distinct cells whose value at this version differs from the extract's, net of cells
     /// changed twice or changed back.
     pub cells_changed: u64,
+    /// Values kept on purpose at this version (row and column, with the reason).
+    pub kept: Vec<MarkView>,
+    /// Notes for review at this version.
+    pub noted: Vec<MarkView>,
+    /// Decisions owed: carried conflicts still open, and those deferred (one line each).
+    pub conflicts: Vec<String>,
     /// Rows excluded at this version, with reasons.
     pub excluded_rows: Vec<MarkView>,
     /// Columns distrusted at this version, with reasons.
@@ -138,6 +144,9 @@ pub struct CommitView {
     pub message: String,
     /// What kind of commit: `"ingest"` or `"fixes"`.
     pub kind: String,
+    /// For an extract: its receipt (file, rows, columns, BLAKE3); for a tag or a change of
+    /// trust: what it says.
+    pub summary: Option<String>,
     /// The fixes in this commit, in the order they were recorded.
     pub fixes: Vec<FixView>,
 }
@@ -149,6 +158,9 @@ pub struct FixView {
     pub kind: String,
     /// One line saying what the fix does, e.g. `"recode site: 'Mill Craek' -> 'Mill Creek'"`.
     pub description: String,
+    /// Where the fix came from and went: carried from an earlier extract's commit, carried on
+    /// to a later extract, or not carried past its own extract.
+    pub carried: Option<String>,
     /// The mandatory reason.
     pub why: String,
     /// The expert consulted, if any.

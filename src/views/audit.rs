@@ -19,7 +19,7 @@ use std::collections::HashMap;
 use std::ops::ControlFlow;
 
 /// How many changed cells of one fix the report lists (the count is always complete).
-pub const CELLS_LISTED: usize = 20;
+pub const CELLS_LISTED: usize = 100_000;
 const HISTOGRAM_BINS: usize = 20;
 const OUTLIERS_LISTED: usize = 50;
 
@@ -209,18 +209,48 @@ pub fn report_view(
     let mut all_records: Vec<crate::model::FixRecord> = Vec::new();
     let mut excluded = Vec::new();
     let mut distrusted = Vec::new();
+    let mut kept = Vec::new();
+    let mut noted = Vec::new();
+    let mut conflicts: Vec<String> = Vec::new();
     let mut head = None;
+    // The table's whole story, from its first extract; marks and counts are those of the
+    // version shown (its own extract on).
+    let extracts = reader.extracts_of(table)?;
+    let first = extracts.first().map_or(after.ingest_seq, |(s, _)| *s);
     // Fixes withdrawn by `upto`: their exclusions and distrust no longer hold.
     let withdrawn = crate::query::withdrawn_fixes(reader, after.ingest_seq, upto)?;
-    for seq in after.ingest_seq..=upto {
-        let Some(stored) = reader.try_commit(seq)? else {
-            continue;
-        };
-        let body = decode(&stored)?;
+    let mut bodies = Vec::new();
+    for seq in first..=upto {
+        if let Some(stored) = reader.try_commit(seq)? {
+            let body = decode(&stored)?;
+            bodies.push((seq, stored, body));
+        }
+    }
+    // Which later commit carried each fix on: (origin commit, fix index) → commit.
+    let mut carried_to: HashMap<(u64, u64), u64> = HashMap::new();
+    for (seq, _, body) in &bodies {
+        if let Change::Fixes(list) = &body.change {
+            for r in list.iter().filter(|r| r.fix.table == table) {
+                if let Some(o) = r.fix.origins.last() {
+                    carried_to.entry((o.seq, o.fix_idx)).or_insert(*seq);
+                }
+            }
+        }
+    }
+    let next_extract = |seq: u64| {
+        extracts
+            .iter()
+            .map(|(s, _)| *s)
+            .find(|s| *s > seq && *s <= upto)
+    };
+    for (seq, stored, body) in bodies {
         if seq == upto {
             head = Some((stored.id, body.time.clone()));
         }
-        if let Change::Fixes(list) = &body.change {
+        let current = seq >= after.ingest_seq;
+        if let Change::Fixes(list) = &body.change
+            && current
+        {
             all_records.extend(list.iter().filter(|r| r.fix.table == table).cloned());
         }
         let fixes: Vec<FixView> = match &body.change {
@@ -229,9 +259,36 @@ pub fn report_view(
                 .enumerate()
                 .filter(|(_, r)| r.fix.table == table)
                 .map(|(i, r)| {
-                    let live = !withdrawn.contains(&(seq, i as u64 + 1));
+                    let live = current && !withdrawn.contains(&(seq, i as u64 + 1));
+                    if live && r.fix.why.starts_with("carried conflict left open") {
+                        conflicts.push(format!(
+                            "deferred in commit {seq}: {} — {}",
+                            r.fix.action.describe(),
+                            r.fix.why
+                        ));
+                    }
+                    let mark_rows = |resolved: &[crate::model::RowId], column: &str| {
+                        resolved
+                            .iter()
+                            .map(|row| MarkView {
+                                target: if column.is_empty() {
+                                    row.to_string()
+                                } else {
+                                    format!("{row} {column}")
+                                },
+                                why: r.fix.why.clone(),
+                                seq,
+                            })
+                            .collect::<Vec<_>>()
+                    };
                     match &r.fix.action {
                         _ if !live => {}
+                        FixAction::Keep {
+                            resolved, column, ..
+                        } => kept.extend(mark_rows(resolved, column)),
+                        FixAction::Note {
+                            resolved, column, ..
+                        } => noted.extend(mark_rows(resolved, column.as_deref().unwrap_or(""))),
                         FixAction::Exclude { row } => excluded.push(MarkView {
                             target: row.to_string(),
                             why: r.fix.why.clone(),
@@ -251,9 +308,22 @@ pub fn report_view(
                         }),
                         _ => {}
                     }
+                    let from = r.fix.origins.last().map(|o| o.seq);
+                    let on = carried_to.get(&(seq, i as u64)).copied();
+                    let carried = match (from, on) {
+                        (Some(f), Some(t)) => {
+                            Some(format!("carried from commit {f}; carried on in commit {t}"))
+                        }
+                        (Some(f), None) => Some(format!("carried from commit {f}")),
+                        (None, Some(t)) => Some(format!("carried to a later extract in commit {t}")),
+                        (None, None) => next_extract(seq).map(|e| {
+                            format!("not carried onto the extract of commit {e} (fixed at source, row gone, or left behind)")
+                        }),
+                    };
                     FixView {
                         kind: r.fix.action.kind().to_string(),
                         description: r.fix.action.describe(),
+                        carried,
                         why: r.fix.why.clone(),
                         consulted: r.fix.consulted.clone(),
                         evidence: r
@@ -308,8 +378,31 @@ pub fn report_view(
                 Change::Revoke(_) => "revoke",
             }
             .into(),
+            summary: match &body.change {
+                Change::Ingest(r) => Some(format!(
+                    "extract {}: {} rows × {} columns, {} bytes, BLAKE3 {}",
+                    r.file_name,
+                    r.n_rows,
+                    r.header.len(),
+                    r.n_bytes,
+                    r.extract.to_hex()
+                )),
+                _ => None,
+            },
             fixes,
         });
+    }
+    for c in reader
+        .conflicts()?
+        .iter()
+        .filter(|c| c.conflict.fix.table == table)
+    {
+        conflicts.push(format!(
+            "open: {} — {} ({} cells changed at source; 'emend status' lists them)",
+            c.conflict.fix.action.describe(),
+            c.conflict.fix.why,
+            c.conflict.cells.len()
+        ));
     }
     let (columns, mut problems) = columns(reader, &before, &after)?;
     if let Some((_, _, text)) = rules_at(reader, table, upto)?
@@ -379,6 +472,9 @@ pub fn report_view(
         },
         commits,
         cells_changed: crate::model::net_cells(&all_records),
+        kept,
+        noted,
+        conflicts,
         excluded_rows: excluded,
         distrusted_columns: distrusted,
         columns,
@@ -601,6 +697,17 @@ pub fn decision_rows(
                         None,
                         None,
                     ));
+                }
+                // Decisions on no row: a column distrusted, rules adopted, a fix withdrawn
+                // that changed no cell. One row each, so the export lists every decision.
+                let whole = match &r.fix.action {
+                    FixAction::Distrust { column } => Some(column.clone()),
+                    FixAction::Rules { .. } => Some(String::new()),
+                    FixAction::Withdraw { .. } if r.edits.is_empty() => Some(String::new()),
+                    _ => None,
+                };
+                if let Some(column) = whole {
+                    out.push(row_of(String::new(), column, None, None));
                 }
             }
         }

@@ -272,15 +272,15 @@ fn codebook_and_provenance_follow_the_w3c_shapes() {
             }
         }
     }
-    // The decisions file: one row per cell edit of the version, and one per row excluded,
-    // kept or noted.
+    // The decisions file: one row per cell edit of the version, one per row excluded, kept
+    // or noted, and one per decision on no row (the rules adopted, the column distrusted).
     let decisions = std::fs::read_to_string(dir.path("d/decisions.csv")).unwrap();
     let rows = crate::util::parse_csv(&decisions, ',');
     assert_eq!(rows[0][..4], ["row", "column", "old", "new"]);
     assert_eq!(
         rows.len() - 1,
-        134,
-        "122 + 10 cells changed by the demo's two fix commits, one row excluded, one noted"
+        136,
+        "122 + 10 cells changed by the demo's two fix commits, one row excluded, one noted, the rules and the distrust"
     );
     assert!(rows.iter().any(|r| r[0] == "S-00977" && r[4] == "exclude"));
     assert!(
@@ -291,4 +291,104 @@ fn codebook_and_provenance_follow_the_w3c_shapes() {
         rows.iter()
             .any(|r| r[0] == "S-00412" && r[1] == "ph" && r[2] == "71" && r[3] == "7.1")
     );
+}
+
+/// Issue 15: a report after a second extract and `carry` tells the table's whole story: both
+/// extracts' receipts, the rules, where each fix was carried, and the conflicts owed.
+#[test]
+fn a_report_after_carry_shows_both_extracts_the_rules_the_outcomes_and_the_conflicts() {
+    let dir = TestDir::new("report_story");
+    crate::util::setup_store(&dir);
+    dir.write(
+        "oct.csv",
+        "id,site,ph\nA,mill creek,7\nB,Mill Creek,71\nC,heron,6\n",
+    );
+    dir.write(
+        "nov.csv",
+        "id,site,ph\nA,mill creek,7\nB,Mill Creek,7.1\nC,heron,65\nD,mill creek,7\n",
+    );
+    dir.write(
+        "rules.toml",
+        "[columns.ph]\ntype = \"decimal\"\nhard = { min = 0, max = 14 }\n",
+    );
+    dir.cmd(["ingest", "oct.csv", "--table", "s", "--key", "id"])
+        .ok();
+    dir.cmd(["rules", "s", "rules.toml", "--why", "pH runs 0 to 14"])
+        .ok();
+    dir.cmd([
+        "recode",
+        "s",
+        "site",
+        "--from",
+        "mill creek",
+        "--to",
+        "Mill Creek",
+        "--why",
+        "spelling",
+    ])
+    .ok();
+    dir.cmd(["set", "s", "B", "ph", "7.1", "--why", "lab sheet"])
+        .ok();
+    dir.cmd(["set", "s", "C", "ph", "6.5", "--why", "decimal point"])
+        .ok();
+    dir.cmd(["commit", "-m", "October"]).ok(); // 3
+    dir.cmd(["ingest", "nov.csv", "--table", "s", "-m", "November"])
+        .ok(); // 4
+    dir.cmd(["carry", "s"]).ok().says(&["[conflict]"]);
+    let report = |name: &str| {
+        dir.cmd(["report", "s", "-o", name]).ok();
+        Html::parse_document(&String::from_utf8(dir.read(name)).unwrap())
+    };
+    let texts = |doc: &Html, css: &str| -> Vec<String> {
+        doc.select(&sel(css))
+            .map(|e| e.text().collect::<String>())
+            .collect()
+    };
+    // While the conflict is open, the report says so.
+    let open = report("open.html");
+    let owed = texts(&open, "ul.owed li");
+    assert!(
+        owed.iter().any(|t| t.starts_with("open: set C ph")),
+        "{owed:?}"
+    );
+
+    dir.cmd(["commit", "-m", "carried", "--defer-conflicts"])
+        .ok(); // 5
+    let doc = report("after.html");
+    let receipts = texts(&doc, "p.receipt");
+    assert_eq!(receipts.len(), 2, "{receipts:?}");
+    assert!(
+        receipts[0].starts_with("extract oct.csv: 3 rows × 3 columns"),
+        "{receipts:?}"
+    );
+    assert!(
+        receipts[1].starts_with("extract nov.csv: 4 rows × 3 columns"),
+        "{receipts:?}"
+    );
+    let body = doc.root_element().text().collect::<String>();
+    assert!(
+        body.contains("adopt rules file rules.toml"),
+        "the rules in force"
+    );
+    let carried = texts(&doc, "p.carried");
+    for needle in [
+        "carried to a later extract in commit 5",   // the recode
+        "not carried onto the extract of commit 4", // set B: fixed at source
+        "carried from commit 3",                    // the recode again, in November
+    ] {
+        assert!(
+            carried.iter().any(|t| t.contains(needle)),
+            "{needle}: {carried:?}"
+        );
+    }
+    let owed = texts(&doc, "ul.owed li");
+    assert!(
+        owed.iter()
+            .any(|t| t.starts_with("deferred in commit 5: note on ph in rows C")),
+        "{owed:?}"
+    );
+    let noted = texts(&doc, "section[aria-labelledby=marks] td");
+    assert!(noted.iter().any(|t| t == "C ph"), "{noted:?}");
+    // Both months' fixes are there, and the figure of changed cells is this version's.
+    assert!(body.contains("October") && body.contains("carried"));
 }
