@@ -197,9 +197,10 @@ impl Error {
             Error::NothingPending => "record a fix first (set, recode, missing, tidy, exclude, keep, note, …; emend --help lists them)".into(),
             Error::Busy => "wait for the other process to finish and try again".into(),
             Error::Corrupt(_) => "run 'emend verify' for a full list of problems".into(),
-            Error::BadExtract { .. } | Error::BadFile { .. } => {
+            Error::BadExtract { .. } => {
                 "nothing was stored; fix the file (or give --delimiter / --encoding) and ingest again".into()
             }
+            Error::BadFile { .. } => "nothing was stored; fix the file or the options and ingest again".into(),
             Error::DuplicateKey { .. } => {
                 "nothing was stored; name a key that identifies each row (--key A --key B for a composite key), or ingest without --key".into()
             }

@@ -32,6 +32,9 @@ pub struct CheckArgs {
     /// Try a rules file that is not adopted yet instead of the rules in force
     #[arg(long, value_name = "FILE")]
     rules: Option<PathBuf>,
+    /// List every violation found (up to the number kept per rule), not the first five
+    #[arg(long, conflicts_with = "json")]
+    all: bool,
     /// Print JSON (docs/json.md)
     #[arg(long)]
     json: bool,
@@ -105,7 +108,7 @@ pub fn check(cx: &CliContext, a: CheckArgs) -> Result<i32> {
         obj.insert("passed".into(), report.passed().into());
         out::json(&v)?;
     } else {
-        print_report(&a.table, &label, &source, &report)?;
+        print_report(&a.table, &label, &source, &report, a.all)?;
     }
     Ok(if report.passed() {
         super::EXIT_OK
@@ -114,7 +117,14 @@ pub fn check(cx: &CliContext, a: CheckArgs) -> Result<i32> {
     })
 }
 
-fn print_report(table: &str, label: &str, source: &str, report: &CheckReport) -> Result<()> {
+fn print_report(
+    table: &str,
+    label: &str,
+    source: &str,
+    report: &CheckReport,
+    all: bool,
+) -> Result<()> {
+    let q = emend::model::quantity;
     let mut o = out::stdout();
     let errors = report.count(Severity::Error);
     let warnings = report.count(Severity::Warning);
@@ -125,21 +135,20 @@ fn print_report(table: &str, label: &str, source: &str, report: &CheckReport) ->
     };
     writeln!(
         o,
-        "{} at {label} {verdict} {source}: {} rows, {errors} error-level and {warnings} warning-level violations",
+        "{} at {label} {verdict} {source}: {}, {} at error level and {} at warning level",
         paint(BOLD, table),
-        report.n_rows
+        q(report.n_rows, "row", "rows"),
+        q(errors, "violation", "violations"),
+        q(warnings, "violation", "violations")
     )?;
-    for r in &report.rules {
-        let sev = match r.severity {
-            Severity::Error => "error",
-            Severity::Warning => "warning",
-        };
-        let mark = if r.violations == 0 {
-            paint(GOOD, "ok     ")
-        } else if r.severity == Severity::Error {
-            paint(BAD, "broken ")
-        } else {
-            paint(BOLD, "warning")
+    // Broken rules first, errors before warnings; the rules that hold in one line at the end.
+    let mut broken: Vec<_> = report.rules.iter().filter(|r| r.violations > 0).collect();
+    broken.sort_by_key(|r| (r.severity != Severity::Error, r.line));
+    let shown = if all { emend::checks::MAX_EXAMPLES } else { 5 };
+    for r in &broken {
+        let (mark, sev) = match r.severity {
+            Severity::Error => (paint(BAD, "breaks "), "error"),
+            Severity::Warning => (paint(BOLD, "warns  "), "warning"),
         };
         writeln!(
             o,
@@ -148,41 +157,67 @@ fn print_report(table: &str, label: &str, source: &str, report: &CheckReport) ->
             r.description,
             paint(
                 DIM,
-                format!("({sev}, line {}, {} rows)", r.line, r.violations)
+                format!(
+                    "({sev}, line {}, {})",
+                    r.line,
+                    q(r.violations, "row", "rows")
+                )
             )
         )?;
-        for v in r.examples.iter().take(5) {
+        for v in r.examples.iter().take(shown) {
             writeln!(
                 o,
                 "          row {} (#{}) {}{}: {}",
-                v.row,
+                out::clean(&v.row),
                 v.pos,
                 v.column.as_deref().unwrap_or(""),
                 v.value
                     .as_deref()
-                    .map(|x| format!(" = '{x}'"))
+                    .map(|x| format!(" = {}", out::quoted(&Some(x.to_owned()))))
                     .unwrap_or_default(),
-                v.message
+                out::clean(&v.message)
             )?;
         }
-        if r.violations > 5 {
-            writeln!(
-                o,
-                "          … {} more (--json lists up to {})",
-                r.violations - 5,
-                emend::checks::MAX_EXAMPLES
-            )?;
+        let listed = r.examples.len().min(shown) as u64;
+        if r.violations > listed {
+            let how = if all || listed as usize >= emend::checks::MAX_EXAMPLES {
+                format!(
+                    "a check keeps the first {} rows of each rule",
+                    emend::checks::MAX_EXAMPLES
+                )
+            } else {
+                "--all lists them".to_string()
+            };
+            writeln!(o, "          … {} more ({how})", r.violations - listed)?;
         }
     }
     for f in &report.flags {
+        let what = match f.kind {
+            emend::checks::FlagKind::MostlyMissing => "mostly missing",
+            emend::checks::FlagKind::NearConstant => "nearly one value",
+        };
         writeln!(
             o,
-            "  {} column {}: {:?} ({:.1}% against a threshold of {:.1}%)",
+            "  {} column {} is {what}: {:.1}% of its cells, above the threshold of {:.1}%",
             paint(BOLD, "flag   "),
             f.column,
-            f.kind,
             f.share * 100.0,
             f.threshold * 100.0
+        )?;
+    }
+    let holding: Vec<&str> = report
+        .rules
+        .iter()
+        .filter(|r| r.violations == 0)
+        .map(|r| r.id.as_str())
+        .collect();
+    if !holding.is_empty() {
+        writeln!(
+            o,
+            "  {} {}: {}",
+            paint(GOOD, "holds  "),
+            q(holding.len() as u64, "rule", "rules"),
+            paint(DIM, holding.join(", "))
         )?;
     }
     Ok(())

@@ -11,16 +11,16 @@ use super::context::CliContext;
 
 #[derive(Args, Debug)]
 pub struct DiffArgs {
-    /// [TABLE] FROM TO: revisions (commit number, tag, 8+ hex digits, latest, raw); without
-    /// TABLE, every table
-    #[arg(num_args = 2..=3, required = true, value_names = ["TABLE", "FROM", "TO"])]
+    /// [TABLE] FROM [TO]: revisions (commit number, tag, 8+ hex digits, latest, raw); TO is
+    /// latest when left out; without TABLE, every table
+    #[arg(num_args = 1..=3, required = true, value_names = ["TABLE", "FROM", "TO"])]
     args: Vec<String>,
     /// Comma-separated values, one line per change, for a spreadsheet
-    #[arg(long, conflicts_with_all = ["json", "stat"])]
+    #[arg(long, conflicts_with_all = ["json", "by_column"])]
     csv: bool,
-    /// Counts per column instead of every cell
+    /// How many cells changed in each column, instead of every cell
     #[arg(long, conflicts_with = "json")]
-    stat: bool,
+    by_column: bool,
     /// Print JSON (docs/json.md)
     #[arg(long)]
     json: bool,
@@ -201,10 +201,15 @@ fn csv_line(o: &mut dyn Write, fields: &[String]) -> Result<()> {
 pub fn diff_cmd(cx: &CliContext, a: DiffArgs) -> Result<i32> {
     let store = cx.store()?;
     let reader = store.read();
+    let names = reader.table_names()?;
+    let latest = "latest".to_string();
+    // A first word that names a table is the table ('diff samples raw' is raw → latest).
     let (tables, from, to) = match a.args.as_slice() {
         [t, f, to] => (vec![t.clone()], f, to),
-        [f, to] => (reader.table_names()?, f, to),
-        _ => bail!("diff takes [TABLE] FROM TO"),
+        [t, f] if names.contains(t) => (vec![t.clone()], f, &latest),
+        [f, to] => (names, f, to),
+        [f] => (names, f, &latest),
+        _ => bail!("diff takes [TABLE] FROM [TO]"),
     };
     let from_rev = query::resolve(&reader, from)?;
     let to_rev = query::resolve(&reader, to)?;
@@ -258,25 +263,45 @@ pub fn diff_cmd(cx: &CliContext, a: DiffArgs) -> Result<i32> {
             format!("commit {s}")
         }
     };
+    let q = emend::model::quantity;
     for d in &diffs {
+        // The summary names only what happened, in words.
+        let mut parts = vec![format!(
+            "{} edited",
+            q(d.cells.len() as u64, "cell", "cells")
+        )];
+        for (n, one, many) in [
+            (d.rows_added.len(), "new row", "new rows"),
+            (d.rows_removed.len(), "row gone", "rows gone"),
+            (
+                d.rows_excluded.len(),
+                "change of exclusion",
+                "changes of exclusion",
+            ),
+            (
+                d.columns_distrusted.len(),
+                "change of trust in a column",
+                "changes of trust in columns",
+            ),
+        ] {
+            if n > 0 {
+                parts.push(q(n as u64, one, many));
+            }
+        }
         writeln!(
             o,
-            "{}: {} → {}{} — {} cells changed, {} rows added, {} rows removed, {} exclusions, {} distrusted columns",
+            "{} from {} to {}{}: {}",
             paint(BOLD, &d.table),
             label(&from_rev, d.from_seq),
             label(&to_rev, d.to_seq),
             if d.across_extracts {
-                " (across extracts)"
+                ", across extracts"
             } else {
                 ""
             },
-            d.cells.len(),
-            d.rows_added.len(),
-            d.rows_removed.len(),
-            d.rows_excluded.len(),
-            d.columns_distrusted.len()
+            parts.join(", ")
         )?;
-        if a.stat {
+        if a.by_column {
             for (c, n) in d.stat() {
                 writeln!(o, "  {c:24} {n:>8} cells")?;
             }
@@ -321,31 +346,23 @@ pub fn diff_cmd(cx: &CliContext, a: DiffArgs) -> Result<i32> {
                 writeln!(o, "  {line}")?;
             }
         }
-        for r in &d.rows_added {
-            writeln!(
-                o,
-                "  {} row {}: {}",
-                paint(GOOD, "+"),
-                r.row,
-                r.cells
-                    .iter()
-                    .map(show_value)
-                    .collect::<Vec<_>>()
-                    .join(" | ")
-            )?;
-        }
-        for r in &d.rows_removed {
-            writeln!(
-                o,
-                "  {} row {}: {}",
-                paint(BAD, "-"),
-                r.row,
-                r.cells
-                    .iter()
-                    .map(show_value)
-                    .collect::<Vec<_>>()
-                    .join(" | ")
-            )?;
+        for (rows, word, style) in [
+            (&d.rows_added, "new row", GOOD),
+            (&d.rows_removed, "row gone", BAD),
+        ] {
+            for r in rows {
+                writeln!(
+                    o,
+                    "  {} {}: {}",
+                    paint(style, word),
+                    out::clean(&r.row.to_string()),
+                    r.cells
+                        .iter()
+                        .map(show_value)
+                        .collect::<Vec<_>>()
+                        .join(" | ")
+                )?;
+            }
         }
         for m in &d.rows_excluded {
             let what = if m.set_in_to {

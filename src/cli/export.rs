@@ -16,7 +16,7 @@ use super::show::rev_label;
 pub struct ExportArgs {
     /// Table
     table: String,
-    /// Revision: commit number, 8+ hex digits of an id, 'latest' (default) or 'raw'
+    /// Revision: commit number, tag, 8+ hex digits of an id, 'latest' (default) or 'raw'
     #[arg(long, default_value = "latest", value_name = "REV")]
     at: String,
     /// Write the extract's bytes exactly as ingested, without fixes
@@ -139,7 +139,25 @@ pub fn export(cx: &CliContext, a: ExportArgs) -> Result<i32> {
         }
     };
     let side_files = a.codebook.is_some() || a.provenance.is_some() || a.decisions.is_some();
-    match &a.output {
+    // A codebook describes a CSV file: without -o, that file is written beside it, under the
+    // name the codebook gives it.
+    let beside = match (&a.output, &a.codebook) {
+        (None, Some(cb)) => {
+            let p = cb
+                .parent()
+                .unwrap_or_else(|| std::path::Path::new(""))
+                .join(format!("{}.csv", v.table));
+            if p.exists() {
+                anyhow::bail!(
+                    "--codebook describes {}, which exists; give -o FILE for the CSV it describes",
+                    p.display()
+                );
+            }
+            Some(p)
+        }
+        _ => None,
+    };
+    match a.output.as_ref().or(beside.as_ref()) {
         Some(path) => {
             let mut f = AtomicFile::create(path)?;
             let what = run(&mut f)?;
@@ -159,6 +177,7 @@ pub fn export(cx: &CliContext, a: ExportArgs) -> Result<i32> {
         let csv_url = a
             .output
             .as_ref()
+            .or(beside.as_ref())
             .and_then(|p| p.file_name())
             .map(|n| n.to_string_lossy().into_owned())
             .unwrap_or_else(|| format!("{}.csv", v.table));

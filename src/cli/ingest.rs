@@ -41,8 +41,8 @@ pub fn init(cx: &CliContext) -> Result<i32> {
     let mut o = out::stdout();
     writeln!(
         o,
-        "{} empty store in {}",
-        paint(GOOD, "made"),
+        "{} this folder's history begins: {} holds every extract and decision from now on",
+        paint(GOOD, "ready:"),
         store.path().display()
     )?;
     match cx.try_identity()? {

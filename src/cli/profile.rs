@@ -18,7 +18,7 @@ use std::io::Write;
 pub struct ProfileArgs {
     /// Table
     table: String,
-    /// Revision: commit number, 8+ hex digits of an id, 'latest' (default) or 'raw'
+    /// Revision: commit number, tag, 8+ hex digits of an id, 'latest' (default) or 'raw'
     #[arg(long, default_value = "latest", value_name = "REV")]
     at: String,
     /// One column in depth

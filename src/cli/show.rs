@@ -21,7 +21,7 @@ pub struct ShowArgs {
     /// The rows where a condition holds ('ph gt 14'; the words of the rules file), at most 50
     #[arg(long = "where", value_name = "CONDITION", conflicts_with = "rows")]
     condition: Option<String>,
-    /// Revision: commit number, 8+ hex digits of an id, 'latest' (default) or 'raw'
+    /// Revision: commit number, tag, 8+ hex digits of an id, 'latest' (default) or 'raw'
     #[arg(long, default_value = "latest", value_name = "REV")]
     at: String,
     /// Rows by 1-based position, e.g. 1-20 or 41
@@ -490,16 +490,15 @@ pub fn log(cx: &CliContext, a: LogArgs) -> Result<i32> {
         } else {
             " (untrusted key)"
         };
+        // The number and the date lead, then the message; who signed, and the fixes, below.
+        let when = b.time.replacen('T', " ", 1);
+        let when = when.strip_suffix('Z').unwrap_or(&when);
         writeln!(
             o,
-            "{} {}  {}  {}{}  {}{}",
-            paint(BOLD, format!("commit {}", c.seq)),
-            paint(DIM, c.id.short()),
-            b.time,
-            b.author.name,
-            email,
-            paint(DIM, fingerprint(&b.author.key)),
-            trust
+            "{}  {}  {}",
+            paint(BOLD, format!("No. {}", c.seq)),
+            when,
+            paint(BOLD, out::clean(&b.message))
         )?;
         let names: Vec<&str> = tags
             .iter()
@@ -509,8 +508,22 @@ pub fn log(cx: &CliContext, a: LogArgs) -> Result<i32> {
         if !names.is_empty() {
             writeln!(o, "    tagged {}", paint(BOLD, names.join(", ")))?;
         }
-        writeln!(o, "    {}", b.message)?;
-        writeln!(o, "    {}", paint(DIM, summary(b)))?;
+        writeln!(
+            o,
+            "    {}",
+            paint(
+                DIM,
+                format!(
+                    "signed by {}{} · key {}{} · id {}",
+                    out::clean(&b.author.name),
+                    out::clean(&email),
+                    fingerprint(&b.author.key),
+                    trust,
+                    c.id.short()
+                )
+            )
+        )?;
+        writeln!(o, "    {}", summary(b))?;
         if let Change::Fixes(list) = &b.change {
             for (i, r) in list.iter().enumerate() {
                 writeln!(

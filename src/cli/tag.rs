@@ -12,25 +12,29 @@ use super::context::CliContext;
 
 #[derive(Args, Debug)]
 pub struct TagArgs {
-    /// Tag name (a letter first; letters, digits, '_', '-', '.')
-    name: String,
-    /// The commit to name (default latest)
-    #[arg(default_value = "latest")]
-    rev: String,
-    /// What the tag marks
-    #[arg(short = 'm', long = "message")]
-    message: Option<String>,
+    /// [REV] NAME: the commit to name (default latest), then the tag's name (a letter first;
+    /// letters, digits, '_', '-', '.')
+    #[arg(num_args = 1..=2, required = true, value_names = ["REV", "NAME"])]
+    args: Vec<String>,
+    /// What the tag marks ("version sent to the board")
+    #[arg(long, value_name = "TEXT")]
+    note: Option<String>,
 }
 
 pub fn tag_cmd(cx: &CliContext, a: TagArgs) -> Result<i32> {
+    let (rev, name) = match a.args.as_slice() {
+        [rev, name] => (rev.as_str(), name.clone()),
+        [name] => ("latest", name.clone()),
+        _ => anyhow::bail!("tag takes [REV] NAME"),
+    };
     let mut store = cx.store()?;
     let id = cx.identity()?;
     let ctx = id.context(cx.now()?);
     let done = ledger::tag(
         &mut store,
-        &a.name,
-        &a.rev,
-        a.message.as_deref().unwrap_or(""),
+        &name,
+        rev,
+        a.note.as_deref().unwrap_or(""),
         &ctx,
     )?;
     let target = match &done.body.change {
@@ -41,7 +45,7 @@ pub fn tag_cmd(cx: &CliContext, a: TagArgs) -> Result<i32> {
         out::stdout(),
         "{} {} names commit {} (signed as commit {} {})",
         paint(GOOD, "tagged"),
-        paint(BOLD, &a.name),
+        paint(BOLD, &name),
         target,
         done.seq,
         paint(DIM, done.id.short())
@@ -76,7 +80,7 @@ pub fn tags_cmd(cx: &CliContext, json: bool) -> Result<i32> {
     }
     let mut o = out::stdout();
     if items.is_empty() {
-        writeln!(o, "no tags yet: emend tag NAME [REV] -m \"...\"")?;
+        writeln!(o, "no tags yet: emend tag [REV] NAME --note \"...\"")?;
     }
     for (n, s, t, b) in &items {
         writeln!(

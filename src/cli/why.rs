@@ -113,6 +113,18 @@ pub fn why_cmd(cx: &CliContext, a: WhyArgs) -> Result<i32> {
     let reader = store.read();
     let rev = query::resolve(&reader, &a.at)?;
     let mut o = out::stdout();
+    // `why TABLE COLUMN`: a lone word that names a column and no row is the column.
+    let mut a = a;
+    if a.column.is_none()
+        && a.col.is_none()
+        && let Some(word) = a.row.clone()
+    {
+        let v = query::Version::load(&reader, &a.table, rev.seq, rev.raw)?;
+        if v.col_idx(&word).is_ok() {
+            a.col = Some(word);
+            a.row = None;
+        }
+    }
     if let Some(col) = a.col.as_deref().filter(|_| a.row.is_none()) {
         let (ingest_seq, list) = why_column(&reader, &a.table, col, rev)?;
         if a.json {

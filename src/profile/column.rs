@@ -1087,7 +1087,7 @@ fn column_findings(
                 FindingKind::Outliers,
                 Severity::Medium,
                 format!(
-                    "{} far out and cut off from the rest: {} ({} beyond the Tukey fences [{}, {}] in all, {} with |modified z| > 3.5)",
+                    "{} far out and cut off from the rest: {} ({} outside the fences [{}, {}], 1.5 times the quartile spread beyond the quartiles; {} more than 3.5 robust deviations from the median)",
                     cells(n_cells),
                     quote_list(values.iter().map(|o| fmt_num(o.value)).collect::<Vec<_>>().iter().map(String::as_str), 5),
                     cells(s.beyond_inner),

@@ -253,16 +253,25 @@ fn value(out: &mut dyn Write, v: Option<&str>) -> io::Result<()> {
     }
 }
 
+/// `commit 8`, or `approved-q3 (commit 8)` for a tag, or `raw (commit 6)`: the commit number
+/// said once.
+fn version_words(v: &super::view::VersionView) -> String {
+    if v.label == format!("commit {}", v.seq) {
+        v.label.clone()
+    } else {
+        format!("{} (commit {})", v.label, v.seq)
+    }
+}
+
 fn write_cover(view: &ReportView, out: &mut dyn Write) -> io::Result<()> {
     writeln!(out, r#"<header class="cover">"#)?;
     writeln!(out, r#"<p class="kicker">emend · audit report</p>"#)?;
     writeln!(out, "<h1>{}</h1>", Esc(&view.title))?;
     writeln!(
         out,
-        r#"<p class="lede">Table <strong>{}</strong> at version <strong>{}</strong> (commit {}), built from the extract <strong>{}</strong> and every recorded decision up to that commit.</p>"#,
+        r#"<p class="lede">Table <strong>{}</strong> at <strong>{}</strong>, built from the extract <strong>{}</strong> and every recorded decision up to that commit.</p>"#,
         Esc(&view.table),
-        Esc(&view.version.label),
-        view.version.seq,
+        Esc(&version_words(&view.version)),
         Esc(&view.extract.file_name)
     )?;
     let n_fixes: usize = view.commits.iter().map(|c| c.fixes.len()).sum();
@@ -337,7 +346,7 @@ fn write_about(view: &ReportView, out: &mut dyn Write) -> io::Result<()> {
     row_th(out, "Table")?;
     writeln!(out, "{}</td></tr>", Esc(&view.table))?;
     row_th(out, "Version")?;
-    writeln!(out, "{} (commit {})</td></tr>", Esc(&v.label), v.seq)?;
+    writeln!(out, "{}</td></tr>", Esc(&version_words(v)))?;
     row_th(out, "Version time")?;
     writeln!(out, "{}</td></tr>", Esc(&v.time))?;
     row_th(out, "Version commit id")?;
@@ -899,6 +908,9 @@ fn write_levels(
         }
     }
     let head = r#"<thead><tr><th scope="col">Level</th><th scope="col" class="n">Before</th><th scope="col" class="n">After</th></tr></thead>"#;
+    // A level missing from one side's list is not absent: it is not among that side's most
+    // frequent levels.
+    let not_top = format!(r#"<span class="missing">not in the top {LEVELS_SHOWN}</span>"#);
     let write_rows = |out: &mut dyn Write, rows: &[(&str, Option<u64>, Option<u64>)]| {
         for (v, b, a) in rows {
             write!(out, "<tr><td>")?;
@@ -906,8 +918,8 @@ fn write_levels(
             writeln!(
                 out,
                 r#"</td><td class="n">{}</td><td class="n">{}</td></tr>"#,
-                b.map(fmt_count).unwrap_or_else(|| "—".into()),
-                a.map(fmt_count).unwrap_or_else(|| "—".into())
+                b.map(fmt_count).unwrap_or_else(|| not_top.clone()),
+                a.map(fmt_count).unwrap_or_else(|| not_top.clone())
             )?;
         }
         io::Result::Ok(())

@@ -338,7 +338,7 @@ fn tags_name_revisions_and_never_move() {
         .ok();
     dir.cmd(["set", "s", "A", "v", "10", "--why", "typo"]).ok();
     dir.cmd(["commit", "-m", "fix A"]).ok();
-    dir.cmd(["tag", "approved-q3", "2", "-m", "sent to the board"])
+    dir.cmd(["tag", "2", "approved-q3", "--note", "sent to the board"])
         .ok();
     dir.cmd(["set", "s", "A", "v", "11", "--why", "second look"])
         .ok();
@@ -350,7 +350,7 @@ fn tags_name_revisions_and_never_move() {
     assert_eq!(w["value"], "10");
     let w = dir.cmd(["why", "s", "A", "v", "--json"]).ok().json();
     assert_eq!(w["value"], "11");
-    dir.cmd(["tag", "approved-q3", "latest"])
+    dir.cmd(["tag", "latest", "approved-q3"])
         .code(2)
         .fails(&["already names commit 2"]);
     dir.cmd(["tag", "latest"]).code(2).fails(&["not allowed"]);

@@ -166,7 +166,7 @@ fn trust_is_not_given_backwards_and_can_be_withdrawn_from_a_commit_on() {
         .fails(&["trust was withdrawn from that key"]);
 
     // A commit dated before its parent: a warning, not a failure.
-    let mut c = dir.command(["tag", "v1", "1", "-m", "first"]);
+    let mut c = dir.command(["tag", "1", "v1", "--note", "first"]);
     c.env("EMEND_NOW", "2026-09-01T09:00:00Z");
     dir.run(c).ok();
     dir.cmd(["verify"])

@@ -133,7 +133,7 @@ fn issue_2_log_of_one_table_lists_its_commits() {
         .map(|c| c["seq"].as_u64().unwrap())
         .collect();
     assert_eq!(seqs, [1, 3]);
-    dir.cmd(["log", "other"]).ok().says(&["commit 2"]);
+    dir.cmd(["log", "other"]).ok().says(&["No. 2"]);
     dir.cmd(["log", "nope"]).fails(&["no table named 'nope'"]);
 }
 

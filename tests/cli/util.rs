@@ -287,7 +287,9 @@ impl Output {
 
 /// `init` then `id new` with the default identity folder.
 pub fn setup_store(dir: &TestDir) {
-    dir.cmd(["init"]).ok().says(&["made empty store"]);
+    dir.cmd(["init"])
+        .ok()
+        .says(&["ready: this folder's history begins"]);
     dir.cmd([
         "id",
         "new",
