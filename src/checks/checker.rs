@@ -909,7 +909,7 @@ mod tests {
         let rule = &dirty.rules[1];
         assert_eq!(
             rule.description,
-            "when training_done eq \"no\" then score is missing"
+            "when training_done equals \"no\" then score is missing"
         );
         assert_eq!((rule.line, rule.severity), (3, Severity::Error));
         assert_eq!(dirty.rules[2].severity, Severity::Warning);
@@ -939,15 +939,15 @@ mod tests {
             examples(&report, "after-opening"),
             [(
                 2,
-                "expected sampled_on ge opened_on (\"2016-05-01\"), found \"2016-04-30\""
+                "expected sampled_on at least opened_on (\"2016-05-01\"), found \"2016-04-30\""
             )]
         );
         assert_eq!(
             examples(&report, "when#2"),
             [
-                (3, "expected depth lt 10, found \"12\""),
-                (5, "expected weather ne \"storm\", found \"storm\""),
-                (6, "expected depth lt 10, found \"10.0\""),
+                (3, "expected depth below 10, found \"12\""),
+                (5, "expected weather not \"storm\", found \"storm\""),
+                (6, "expected depth below 10, found \"10.0\""),
             ]
         );
         assert_eq!(

@@ -91,10 +91,12 @@ fn tokens(text: &str) -> Result<Vec<(usize, Token)>, ConditionError> {
 ///
 /// ```
 /// use emend::checks::parse_condition;
-/// let c = parse_condition(r#"site in "Fox Run","Heron Pool" and ph gt 14"#).unwrap();
+/// let c = parse_condition(r#"site one of "Fox Run","Heron Pool" and ph above 14"#).unwrap();
 /// assert_eq!(c[0].values, ["Fox Run", "Heron Pool"]);
-/// assert_eq!((c[1].test.as_str(), c[1].values[0].as_str()), ("gt", "14"));
-/// let e = parse_condition("ph above 14").unwrap_err();
+/// assert_eq!((c[1].test.as_str(), c[1].values[0].as_str()), ("above", "14"));
+/// // The short forms of the first rules files still read, and are stored in words.
+/// assert_eq!(parse_condition("ph gt 14").unwrap()[0].test, "above");
+/// let e = parse_condition("ph over 14").unwrap_err();
 /// assert_eq!(e.at, 4);
 /// ```
 pub fn parse_condition(text: &str) -> Result<Vec<Clause>, ConditionError> {
@@ -125,16 +127,19 @@ pub fn parse_condition(text: &str) -> Result<Vec<Clause>, ConditionError> {
             None => (end, String::new()),
         };
         i += 1;
-        let test_word = if word == "is" {
-            match toks.get(i) {
-                Some((_, Token::Word(w))) if w == "missing" || w == "present" => {
-                    i += 1;
-                    format!("is {w}")
-                }
-                _ => word,
+        // Two-word tests: is missing, is present, at most, at least, one of.
+        let second = match (word.as_str(), toks.get(i)) {
+            ("is", Some((_, Token::Word(w)))) if w == "missing" || w == "present" => Some(w),
+            ("at", Some((_, Token::Word(w)))) if w == "most" || w == "least" => Some(w),
+            ("one", Some((_, Token::Word(w)))) if w == "of" => Some(w),
+            _ => None,
+        };
+        let test_word = match second {
+            Some(w) => {
+                i += 1;
+                format!("{word} {w}")
             }
-        } else {
-            word
+            None => word,
         };
         let Some(test) = Test::from_word(&test_word) else {
             return Err(ConditionError {
@@ -169,7 +174,7 @@ pub fn parse_condition(text: &str) -> Result<Vec<Clause>, ConditionError> {
                         return Err(ConditionError {
                             at: toks[i].0,
                             message: format!(
-                                "only 'in' takes a list; '{test_word}' takes one value"
+                                "only 'one of' takes a list; '{test_word}' takes one value"
                             ),
                         });
                     }
@@ -179,9 +184,10 @@ pub fn parse_condition(text: &str) -> Result<Vec<Clause>, ConditionError> {
                 break;
             }
         }
+        // Stored in today's words, whichever spelling was typed.
         clauses.push(Clause {
             column,
-            test: test_word,
+            test: test.word().to_owned(),
             values,
         });
         match toks.get(i) {

@@ -123,7 +123,7 @@ pub(crate) enum Operand {
     Nothing,
     /// A literal value.
     Value(Literal),
-    /// A list of literal values, for `in`.
+    /// A list of literal values, for `one of`.
     Values(Vec<Literal>),
     /// Another column of the same row.
     Column(ColumnRef),
@@ -861,12 +861,12 @@ fn clause(table: &Reader<'_, '_, '_>) -> Result<Clause, RuleError> {
             return Err(here.error(Some(&table.path), message));
         }
         (Test::In, Some(v), None) => {
-            let items = doc.array(v, &value_path, "an array of values for `in`")?;
+            let items = doc.array(v, &value_path, "an array of values for `one of`")?;
             if items.is_empty() {
                 return Err(doc.error(
                     v.span(),
                     &value_path,
-                    "expected at least one value for `in`",
+                    "expected at least one value for `one of`",
                 ));
             }
             let literals = items
@@ -879,7 +879,7 @@ fn clause(table: &Reader<'_, '_, '_>) -> Result<Clause, RuleError> {
             return Err(doc.error(
                 v.span(),
                 &table.key("value_of"),
-                "`in` needs a list in value",
+                "`one of` needs a list in value",
             ));
         }
         (_, Some(v), None) => {
@@ -1101,12 +1101,12 @@ mod tests {
                 "[[conditions]]\n{when}then = {{ column = \"b\", test = \">=\", value = 1 }}\n"
             ),
             "line 3, key conditions[1].then.test: unknown comparison `>=`; expected one of: \
-             eq, ne, lt, le, gt, ge, in, is missing, is present",
+             equals, not, below, at most, above, at least, one of, is missing, is present",
         );
         check_err(
             "[[conditions]]\nwhen = { column = \"a\", test = \"missing\" }\n",
             "line 2, key conditions[1].when.test: unknown comparison `missing`; expected one of: \
-             eq, ne, lt, le, gt, ge, in, is missing, is present",
+             equals, not, below, at most, above, at least, one of, is missing, is present",
         );
         check_err(
             &format!(
@@ -1116,7 +1116,7 @@ mod tests {
         );
         check_err(
             &format!("[[conditions]]\n{when}then = {{ column = \"b\", test = \"ge\" }}\n"),
-            "line 3, key conditions[1].then: `ge` needs a value or value_of",
+            "line 3, key conditions[1].then: `at least` needs a value or value_of",
         );
         check_err(
             &format!(
@@ -1128,13 +1128,13 @@ mod tests {
             &format!(
                 "[[conditions]]\n{when}then = {{ column = \"b\", test = \"in\", value = \"x\" }}\n"
             ),
-            "line 3, key conditions[1].then.value: expected an array of values for `in`, found a string",
+            "line 3, key conditions[1].then.value: expected an array of values for `one of`, found a string",
         );
         check_err(
             &format!(
                 "[[conditions]]\n{when}then = {{ column = \"b\", test = \"lt\", value = true }}\n"
             ),
-            "line 3, key conditions[1].then.value: booleans have no order, so `lt` cannot compare \
+            "line 3, key conditions[1].then.value: booleans have no order, so `below` cannot compare \
              them; use eq or ne",
         );
         check_err(

@@ -158,16 +158,18 @@ pub(crate) enum Test {
 }
 
 impl Test {
-    /// Reads the word used in rules files.
+    /// Reads the words used in rules files and conditions. The short forms of the first
+    /// rules files (`eq`, `ne`, `lt`, `le`, `gt`, `ge`, `in`) stay readable for ever: rules
+    /// files and conditions already signed into a store use them.
     pub(crate) fn from_word(word: &str) -> Option<Test> {
         Some(match word {
-            "eq" => Test::Eq,
-            "ne" => Test::Ne,
-            "lt" => Test::Lt,
-            "le" => Test::Le,
-            "gt" => Test::Gt,
-            "ge" => Test::Ge,
-            "in" => Test::In,
+            "equals" | "eq" => Test::Eq,
+            "not" | "ne" => Test::Ne,
+            "below" | "lt" => Test::Lt,
+            "at most" | "le" => Test::Le,
+            "above" | "gt" => Test::Gt,
+            "at least" | "ge" => Test::Ge,
+            "one of" | "in" => Test::In,
             "is missing" => Test::IsMissing,
             "is present" => Test::IsPresent,
             _ => return None,
@@ -175,18 +177,19 @@ impl Test {
     }
 
     /// The words [`Test::from_word`] accepts, for error messages.
-    pub(crate) const WORDS: &'static str = "eq, ne, lt, le, gt, ge, in, is missing, is present";
+    pub(crate) const WORDS: &'static str =
+        "equals, not, below, at most, above, at least, one of, is missing, is present";
 
-    /// The word as written in rules files.
+    /// The words as written in rules files and conditions.
     pub(crate) fn word(self) -> &'static str {
         match self {
-            Test::Eq => "eq",
-            Test::Ne => "ne",
-            Test::Lt => "lt",
-            Test::Le => "le",
-            Test::Gt => "gt",
-            Test::Ge => "ge",
-            Test::In => "in",
+            Test::Eq => "equals",
+            Test::Ne => "not",
+            Test::Lt => "below",
+            Test::Le => "at most",
+            Test::Gt => "above",
+            Test::Ge => "at least",
+            Test::In => "one of",
             Test::IsMissing => "is missing",
             Test::IsPresent => "is present",
         }

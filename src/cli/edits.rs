@@ -22,8 +22,8 @@ pub struct RowChoice {
     /// semicolons for a table with a composite key); may be repeated
     #[arg(long, value_name = "ROWS", conflicts_with = "condition")]
     pub rows: Vec<String>,
-    /// The rows where a condition holds, in the rules file's words: 'ph gt 14',
-    /// 'site in "Fox Run","Heron Pool" and notes is missing'
+    /// The rows where a condition holds, in the rules file's words: 'ph above 14',
+    /// 'site one of "Fox Run","Heron Pool" and notes is missing'
     #[arg(long = "where", value_name = "CONDITION", conflicts_with = "breaking")]
     pub condition: Option<String>,
     /// The rows a rule of the adopted rules finds: 'ph.hard', or a condition's id

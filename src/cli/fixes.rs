@@ -32,7 +32,7 @@ pub struct FixMeta {
 
 #[derive(Args, Debug)]
 #[command(
-    after_help = "Forms:\n  emend set TABLE ROW COLUMN VALUE --why ...          one cell\n  emend set TABLE ROW COLUMN --missing --why ...      one cell to missing\n  emend set TABLE COLUMN VALUE --rows K1,K2 --why ...  chosen rows\n  emend set TABLE COLUMN --negate --where 'lon gt 0' --why ...\n  emend set TABLE COLUMN --scale -1 --rows #412 --why ..."
+    after_help = "Forms:\n  emend set TABLE ROW COLUMN VALUE --why ...          one cell\n  emend set TABLE ROW COLUMN --missing --why ...      one cell to missing\n  emend set TABLE COLUMN VALUE --rows K1,K2 --why ...  chosen rows\n  emend set TABLE COLUMN --negate --where 'lon above 0' --why ...\n  emend set TABLE COLUMN --scale -1 --rows #412 --why ..."
 )]
 pub struct SetArgs {
     /// Table

@@ -18,7 +18,7 @@ pub struct ShowArgs {
     /// One row: its key, or #N for the row at position N
     #[arg(conflicts_with_all = ["rows", "condition"])]
     row: Option<String>,
-    /// The rows where a condition holds ('ph gt 14'; the words of the rules file), at most 50
+    /// The rows where a condition holds ('ph above 14'; the words of the rules file), at most 50
     #[arg(long = "where", value_name = "CONDITION", conflicts_with = "rows")]
     condition: Option<String>,
     /// Revision: commit number, tag, 8+ hex digits of an id, 'latest' (default) or 'raw'

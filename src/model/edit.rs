@@ -70,13 +70,14 @@ impl fmt::Display for Rows {
     }
 }
 
-/// One test on one column of a row: `ph gt 14`, `site in "Fox Run","Heron Pool"`,
+/// One test on one column of a row: `ph above 14`, `site one of "Fox Run","Heron Pool"`,
 /// `notes is missing`. The words are those of the rules file.
 #[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize)]
 pub struct Clause {
     /// The column tested.
     pub column: String,
-    /// The test, as written in rules files (`eq`, `ne`, `lt`, `le`, `gt`, `ge`, `in`,
+    /// The test, as written in rules files (`equals`, `not`, `below`, `at most`, `above`,
+    /// `at least`, `one of`; the short forms `eq` … `in` of earlier files still read;
     /// `is missing`, `is present`).
     pub test: String,
     /// The value compared with (several for `in`, none for `is missing` / `is present`).

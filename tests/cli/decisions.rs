@@ -145,11 +145,11 @@ fn each_decision_is_recorded_signed_traced_and_carried() {
         "lon",
         "--negate",
         "--where",
-        "lon above 0",
+        "lon over 0",
         "--why",
         "x",
     ])
-    .fails(&["at character 5", "eq, ne, lt"]);
+    .fails(&["at character 5", "equals, not, below"]);
     dir.cmd([
         "set", "s", "lon", "--negate", "--where", "lat gt 0", "--why", "x",
     ])
