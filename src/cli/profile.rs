@@ -346,7 +346,7 @@ pub fn run(cx: &CliContext, a: ProfileArgs) -> Result<i32> {
         writeln!(o)?;
         writeln!(
             o,
-            "{} (min |-- q1 [ median ] q3 --| max, fences at 1.5 IQR)",
+            "{} (+ the smallest and largest value, [ ] the quartiles, | the median, = the middle half; drawn from smallest to largest, so one far value squeezes the box)",
             paint(BOLD, "box plots")
         )?;
         for c in numeric {

@@ -742,6 +742,7 @@ fn write_column(i: usize, c: &ColumnView, out: &mut dyn Write) -> io::Result<()>
         write!(out, r#" <span class="tag">DISTRUSTED</span>"#)?;
     }
     writeln!(out, "</h3>")?;
+    writeln!(out, r#"<p class="cleaning">{}</p>"#, Esc(&c.cleaning))?;
     let (b, a) = (&c.before, &c.after);
     // Two panes on wide screens: the numbers on the left, the drawings (or, for a coded
     // column, the levels) on the right. Print and narrow screens stack them.

@@ -218,6 +218,7 @@ fn view_with(s: &dyn Fn(&str) -> String) -> ReportView {
                 name: s("colname_flow"),
                 inferred: s("inferred_flow"),
                 distrusted: false,
+                cleaning: String::new(),
                 before: stats(&before, 2),
                 after: stats(&after, 4),
             },
@@ -225,6 +226,7 @@ fn view_with(s: &dyn Fn(&str) -> String) -> ReportView {
                 name: s("colname_ph"),
                 inferred: s("inferred_ph"),
                 distrusted: true,
+                cleaning: String::new(),
                 before: ColumnStats::default(),
                 after: stats(&ph, 0),
             },
@@ -232,6 +234,7 @@ fn view_with(s: &dyn Fn(&str) -> String) -> ReportView {
                 name: s("colname_site"),
                 inferred: s("inferred_site"),
                 distrusted: false,
+                cleaning: String::new(),
                 before: ColumnStats {
                     cells: 43,
                     present: 43,

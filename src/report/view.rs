@@ -217,6 +217,8 @@ pub struct ColumnView {
     pub inferred: String,
     /// Whether the column is distrusted at this version.
     pub distrusted: bool,
+    /// What the cleaning changed in it, in words: cells changed, by which fixes.
+    pub cleaning: String,
     /// Statistics of the raw extract.
     pub before: ColumnStats,
     /// Statistics at this version.

@@ -174,6 +174,7 @@ fn columns(
             name: a.name.clone(),
             inferred: inferred_name(a.inferred),
             distrusted: after.is_distrusted(i),
+            cleaning: String::new(),
             before: b.map(|b| stats(b, vb.as_deref())).unwrap_or_default(),
             after: stats(a, va.as_deref()),
         });
@@ -404,7 +405,46 @@ pub fn report_view(
             c.conflict.cells.len()
         ));
     }
-    let (columns, mut problems) = columns(reader, &before, &after)?;
+    let (mut columns, mut problems) = columns(reader, &before, &after)?;
+    // Each column leads with what the cleaning did to it.
+    for c in &mut columns {
+        let per: Vec<crate::model::FixRecord> = all_records
+            .iter()
+            .filter_map(|r| {
+                let edits: Vec<_> = r
+                    .edits
+                    .iter()
+                    .filter(|e| e.column == c.name)
+                    .cloned()
+                    .collect();
+                (!edits.is_empty()).then(|| crate::model::FixRecord {
+                    fix: r.fix.clone(),
+                    edits,
+                })
+            })
+            .collect();
+        let q = crate::model::quantity;
+        c.cleaning = if per.is_empty() {
+            "No fix changed a cell of this column.".to_string()
+        } else {
+            let names: Vec<String> = per
+                .iter()
+                .take(3)
+                .map(|r| r.fix.action.describe())
+                .collect();
+            format!(
+                "The cleaning changed {} of this column, by {}: {}{}.",
+                q(crate::model::net_cells(&per), "cell", "cells"),
+                q(per.len() as u64, "fix", "fixes"),
+                names.join("; "),
+                if per.len() > 3 { "; …" } else { "" }
+            )
+        };
+        if c.distrusted {
+            c.cleaning
+                .push_str(" The column is distrusted: exports leave it out.");
+        }
+    }
     if let Some((_, _, text)) = rules_at(reader, table, upto)?
         && let Ok(ruleset) = crate::checks::RuleSet::parse(&text)
         && let Ok(report) = super::check::check_version(reader, &after, &ruleset)

@@ -389,6 +389,15 @@ fn a_report_after_carry_shows_both_extracts_the_rules_the_outcomes_and_the_confl
     );
     let noted = texts(&doc, "section[aria-labelledby=marks] td");
     assert!(noted.iter().any(|t| t == "C ph"), "{noted:?}");
+    // Each column leads with what the cleaning did to it (November: the carried recode).
+    let cleaning = texts(&doc, "p.cleaning");
+    assert!(
+        cleaning
+            .iter()
+            .any(|t| t
+                .starts_with("The cleaning changed 2 cells of this column, by 1 fix: recode site")),
+        "{cleaning:?}"
+    );
     // Both months' fixes are there, and the figure of changed cells is this version's.
     assert!(body.contains("October") && body.contains("carried"));
 }
