@@ -184,6 +184,20 @@ pub fn parse_condition(text: &str) -> Result<Vec<Clause>, ConditionError> {
                 break;
             }
         }
+        // An ordering test compares numbers or dates: a value that is neither would match no
+        // row without a word.
+        if test.orders()
+            && let Some(v) = values.first()
+            && super::value::parse_number(v).is_none()
+            && super::value::parse_date(v).is_none()
+        {
+            return Err(ConditionError {
+                at,
+                message: format!(
+                    "'{column} {test_word}' compares numbers or dates, and {v:?} is neither"
+                ),
+            });
+        }
         // Stored in today's words, whichever spelling was typed.
         clauses.push(Clause {
             column,

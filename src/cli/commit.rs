@@ -44,6 +44,9 @@ pub struct ResolveArgs {
     /// Why (required, recorded in the signed commit)
     #[arg(long, value_name = "REASON")]
     why: String,
+    /// With --set: a rule of the rules in force the value breaks on purpose
+    #[arg(long, value_name = "RULE", requires = "set")]
+    despite: Option<String>,
 }
 
 pub fn resolve(cx: &CliContext, a: ResolveArgs) -> Result<i32> {
@@ -68,10 +71,11 @@ pub fn resolve(cx: &CliContext, a: ResolveArgs) -> Result<i32> {
         &a.why,
         &now,
         cx.recorder()?.as_ref(),
+        a.despite.as_deref(),
     )?;
     writeln!(
         out::stdout(),
-        "{} conflict {} with: {} (pending; 'emend commit -m ...' signs it, 'emend discard' opens the conflict again)",
+        "{} conflict {} with: {} (pending; 'emend commit -m ...' signs it; 'emend discard N' of it opens the conflict again)",
         paint(GOOD, "answered"),
         a.number,
         fix.action.describe()
@@ -127,10 +131,9 @@ pub fn status(cx: &CliContext, json: bool) -> Result<i32> {
             .collect();
         let open: Vec<serde_json::Value> = conflicts
             .iter()
-            .enumerate()
-            .map(|(i, c)| {
+            .map(|c| {
                 serde_json::json!({
-                    "number": i + 1,
+                    "number": c.id,
                     "fix": super::fixes::fix_json(&c.conflict.fix, None),
                     "cells": c.conflict.cells.iter().map(|x| serde_json::json!({"row": x.row.to_string(), "column": x.column, "was": x.was, "fixed": x.fixed, "now": x.now})).collect::<Vec<_>>(),
                 })
@@ -194,18 +197,18 @@ pub fn status(cx: &CliContext, json: bool) -> Result<i32> {
                 q(conflicts.len() as u64, "open conflict", "open conflicts")
             )
         )?;
-        for (i, c) in conflicts.iter().enumerate() {
+        for c in &conflicts {
             let lines = conflict_lines(&c.conflict);
-            writeln!(o, "  conflict {}. {}", i + 1, out::clean(&lines[0]))?;
+            writeln!(o, "  conflict {}. {}", c.id, out::clean(&lines[0]))?;
             for l in &lines[1..] {
                 writeln!(o, "    {}", out::clean(l))?;
             }
         }
     }
     let next = if !conflicts.is_empty() {
-        "answer each conflict with 'emend resolve N --apply | --keep-source | --set VALUE | --defer --why \"...\"', then 'emend commit -m \"...\"' (or commit with --defer-conflicts)".to_string()
+        "answer each conflict with 'emend resolve N --apply | --keep-source | --set VALUE | --missing | --defer --why \"...\"', then 'emend commit -m \"...\"' (or commit with --defer-conflicts)".to_string()
     } else if others > 0 {
-        "each person commits the fixes they recorded ('emend commit -m \"...\"'); 'emend discard N' drops one".to_string()
+        "'emend commit -m \"...\"' signs the fixes you recorded; the others stay pending for the person who recorded them".to_string()
     } else {
         "'emend commit -m \"...\"' signs them; 'emend discard N' drops one, 'emend discard' all"
             .to_string()
@@ -350,9 +353,10 @@ pub struct DiscardArgs {
 
 pub fn discard(cx: &CliContext, a: DiscardArgs) -> Result<i32> {
     let mut store = cx.store()?;
+    let me = cx.recorder()?.map(|r| r.key);
     match a.number {
         Some(n) => {
-            let fix = ledger::discard_one(&mut store, n)?;
+            let fix = ledger::discard_one(&mut store, n, me.as_ref())?;
             writeln!(
                 out::stdout(),
                 "dropped pending fix {n}: {}",
@@ -360,8 +364,21 @@ pub fn discard(cx: &CliContext, a: DiscardArgs) -> Result<i32> {
             )?;
         }
         None => {
-            let n = ledger::discard(&mut store)?;
-            writeln!(out::stdout(), "dropped {n} pending fixes")?;
+            let (n, left) = ledger::discard(&mut store, me.as_ref())?;
+            let q = emend::model::quantity;
+            writeln!(
+                out::stdout(),
+                "dropped {}{}",
+                q(n as u64, "pending fix", "pending fixes"),
+                if left > 0 {
+                    format!(
+                        "; left {} another person recorded (theirs to commit or drop)",
+                        q(left as u64, "fix", "fixes")
+                    )
+                } else {
+                    String::new()
+                }
+            )?;
         }
     }
     Ok(0)
@@ -399,6 +416,14 @@ pub fn commit(cx: &CliContext, args: CommitArgs) -> Result<i32> {
             Some(text) => format!(" ({text})"),
         };
         writeln!(o, "  {}: {}{count}", r.fix.table, r.fix.action.describe())?;
+    }
+    let left = store.read().pending()?.len();
+    if left > 0 {
+        writeln!(
+            o,
+            "left pending: {} another person recorded (they commit their own)",
+            emend::model::quantity(left as u64, "fix", "fixes")
+        )?;
     }
     if let Some(note) =
         super::id::untrusted_note(&store.read(), &done.body.author.key, &id.name, done.seq)?

@@ -316,18 +316,10 @@ pub fn run(cx: &CliContext, a: DemoArgs) -> Result<i32> {
                 emend::model::quantity(emend::model::net_cells(list), "cell", "cells")
             )?;
             for r in list {
-                writeln!(
-                    o,
-                    "    - {} {}",
-                    r.fix.action.describe(),
-                    paint(
-                        DIM,
-                        format!(
-                            "({})",
-                            emend::model::quantity(r.edits.len() as u64, "cell", "cells")
-                        )
-                    )
-                )?;
+                let count = out::cells_changed(&r.fix.action, r.edits.len())
+                    .map(|t| format!(" {}", paint(DIM, format!("({t})"))))
+                    .unwrap_or_default();
+                writeln!(o, "    - {}{count}", r.fix.action.describe())?;
             }
         }
     }

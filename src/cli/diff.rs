@@ -303,7 +303,11 @@ pub fn diff_cmd(cx: &CliContext, a: DiffArgs) -> Result<i32> {
         )?;
         if a.by_column {
             for (c, n) in d.stat() {
-                writeln!(o, "  {c:24} {n:>8} cells")?;
+                writeln!(
+                    o,
+                    "  {c:24} {n:>8} {}",
+                    if n == 1 { "cell" } else { "cells" }
+                )?;
             }
             continue;
         }

@@ -70,8 +70,12 @@ impl AtomicFile {
             .context("-o needs a file name")?
             .to_string_lossy();
         let tmp = dir.join(format!(".{name}.emend-{}.tmp", std::process::id()));
-        let file =
-            std::fs::File::create(&tmp).with_context(|| format!("creating {}", tmp.display()))?;
+        let file = std::fs::File::create(&tmp).with_context(|| {
+            format!(
+                "cannot write {} (its folder must exist and be writable)",
+                target.display()
+            )
+        })?;
         Ok(AtomicFile {
             tmp,
             target: target.to_path_buf(),

@@ -32,7 +32,7 @@ pub struct FixMeta {
 
 #[derive(Args, Debug)]
 #[command(
-    after_help = "Forms:\n  emend set TABLE ROW COLUMN VALUE --why ...          one cell\n  emend set TABLE ROW COLUMN --missing --why ...      one cell to missing\n  emend set TABLE COLUMN VALUE --rows K1,K2 --why ...  chosen rows\n  emend set TABLE COLUMN --negate --where 'lon above 0' --why ...\n  emend set TABLE COLUMN --scale -1 --rows #412 --why ..."
+    after_help = "Forms:\n  emend set TABLE ROW COLUMN VALUE --why ...          one cell\n  emend set TABLE ROW COLUMN --missing --why ...      one cell to missing\n  emend set TABLE COLUMN VALUE --rows K1,K2 --why ...  chosen rows\n  emend set TABLE COLUMN --negate --where 'lon above 0' --why ...\n  emend set TABLE COLUMN --scale -1 --rows '#412' --why ..."
 )]
 pub struct SetArgs {
     /// Table
@@ -183,11 +183,15 @@ pub fn set(cx: &CliContext, a: SetArgs) -> Result<i32> {
         (None, false, true, None, None) => Transform::Negate,
         (None, false, false, Some(p), None) => Transform::Scale(p),
         (None, false, false, None, Some(n)) => Transform::Round(n),
-        (None, false, false, None, None) => {
-            bail!(
+        (None, false, false, None, None) => match &row {
+            // `set TABLE COLUMN VALUE` without rows: the first word was read as a row.
+            Some(r) => bail!(
+                "'{r} {column}' reads as ROW COLUMN with no value: give 'emend set TABLE ROW COLUMN VALUE' for one cell, or 'emend set TABLE {r} {column} --rows ... | --where ... | --breaking ...' for chosen rows"
+            ),
+            None => bail!(
                 "give the new VALUE, or one of --missing, --negate, --scale POWER, --round PLACES"
-            )
-        }
+            ),
+        },
         (Some(_), ..) => {
             bail!("give a VALUE or a transform (--missing, --negate, --scale, --round), not both")
         }

@@ -24,7 +24,8 @@ pub struct ShowArgs {
     /// Revision: commit number, tag, 8+ hex digits of an id, 'latest' (default) or 'raw'
     #[arg(long, default_value = "latest", value_name = "REV")]
     at: String,
-    /// Rows by 1-based position, e.g. 1-20 or 41
+    /// Rows by 1-based position, e.g. 1-20 or 41; or by key or #N, comma-separated, as the
+    /// fixes take them
     #[arg(long, default_value = "1-20", value_name = "A-B")]
     rows: String,
     /// Only these columns, comma-separated
@@ -172,14 +173,44 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
     let reader = store.read();
     let rev = query::resolve(&reader, &a.at)?;
     let v = query::version_at(&reader, &a.table, rev)?;
-    let (from, to) = parse_rows(&a.rows)?;
-    // Which rows: one by key or #N, those a condition picks, or a range of positions.
-    let one: Option<emend::model::RowId> = match &a.row {
-        Some(text) => {
-            Some(query::parse_rows(&reader, &a.table, std::slice::from_ref(text))?.remove(0))
+    // Which rows: by key or #N (one, or --rows K1,K2 as the fixes take them), those a
+    // condition picks, or a range of positions.
+    let (range, listed) = match (&a.row, parse_rows(&a.rows)) {
+        (Some(text), _) => (
+            (0, 0),
+            Some(query::parse_rows(
+                &reader,
+                &a.table,
+                std::slice::from_ref(text),
+            )?),
+        ),
+        (None, Ok(r)) => (r, None),
+        // A range written wrong stays a range error; anything else may name rows.
+        (None, Err(e))
+            if a.rows
+                .chars()
+                .all(|c| c.is_ascii_digit() || c == '-' || c.is_whitespace()) =>
+        {
+            return Err(e);
         }
-        None => None,
+        (None, Err(e)) => {
+            let texts: Vec<String> = a
+                .rows
+                .split(',')
+                .map(str::trim)
+                .filter(|t| !t.is_empty())
+                .map(str::to_owned)
+                .collect();
+            match query::parse_rows(&reader, &a.table, &texts) {
+                Ok(ids) if !ids.is_empty() => ((0, 0), Some(ids)),
+                _ => return Err(e),
+            }
+        }
     };
+    let (from, to) = range;
+    let wanted: Option<std::collections::HashSet<emend::model::RowId>> =
+        listed.as_ref().map(|l| l.iter().cloned().collect());
+    let one: Option<emend::model::RowId> = listed.as_ref().and_then(|l| l.first().cloned());
     let condition = match &a.condition {
         Some(text) => {
             let clauses = emend::checks::parse_condition(text)
@@ -225,8 +256,8 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
     };
     let mut picked = Vec::new();
     v.for_each_row(&reader, |row| {
-        let take = match (&one, &condition) {
-            (Some(id), _) => row.id == id,
+        let take = match (&wanted, &condition) {
+            (Some(ids), _) => ids.contains(row.id),
             (None, Some(c)) => {
                 if c.holds(row.cells) {
                     matched += 1;
@@ -272,7 +303,9 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
         }
         Ok(ControlFlow::Continue(()))
     })?;
-    if let (Some(id), true) = (&one, picked.is_empty()) {
+    if let Some(l) = &listed
+        && let Some(id) = l.iter().find(|id| !picked.iter().any(|p| p.1 == **id))
+    {
         return Err(emend::Error::UnknownRow {
             table: v.table.clone(),
             row: id.to_string(),
@@ -295,11 +328,18 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
     }
     let mut o = out::stdout();
     let which = match (&one, &a.condition) {
-        (Some(id), _) => format!("row {id}"),
+        (Some(id), _) if listed.as_ref().is_some_and(|l| l.len() == 1) => format!("row {id}"),
+        (Some(_), _) => format!(
+            "{} chosen",
+            emend::model::quantity(picked.len() as u64, "row", "rows")
+        ),
         (None, Some(text)) if matched > WHERE_LIMIT => {
             format!("the first {WHERE_LIMIT} of {matched} rows where {text}")
         }
-        (None, Some(text)) => format!("{matched} rows where {text}"),
+        (None, Some(text)) => format!(
+            "{} where {text}",
+            emend::model::quantity(matched as u64, "row", "rows")
+        ),
         (None, None) => format!("rows {}-{}", from, to.min(v.def.n_rows)),
     };
     writeln!(
@@ -367,7 +407,15 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
         )?;
     }
     if picked.is_empty() {
-        writeln!(o, "(no rows in that range)")?;
+        writeln!(
+            o,
+            "{}",
+            if a.condition.is_some() {
+                "(no row meets the condition)"
+            } else {
+                "(no rows in that range)"
+            }
+        )?;
     }
     let used: std::collections::BTreeSet<char> = picked
         .iter()

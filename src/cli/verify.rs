@@ -135,10 +135,12 @@ pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
                     out::clean(&p.what)
                 )?;
             }
-            writeln!(
-                o,
-                "  next: a trusted signer vouches for a key with 'emend trust KEY --name NAME --why REASON' (its later commits are then trusted); an auditor decides with 'emend verify --trust KEYS.txt'"
-            )?;
+            let next = if a.trust.is_some() {
+                "  next: these commits stay untrusted under this list; an auditor who accepts a signer adds its key (64 hex digits) to the list"
+            } else {
+                "  next: trust is never given backwards, so these commits stay as they are; for a signer's later commits, a trusted signer runs 'emend trust KEY --name NAME --why REASON' (unless it is trusted already); an auditor who accepts these commits lists the key in 'emend verify --trust KEYS.txt'"
+            };
+            writeln!(o, "{next}")?;
         }
         for p in &report.warnings {
             writeln!(

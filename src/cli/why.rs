@@ -19,7 +19,7 @@ pub struct WhyArgs {
     row: Option<String>,
     /// Column: with ROW, the life of one cell; alone, the column's history
     column: Option<String>,
-    /// The column's history (distrust, recodes, missing codes)
+    /// The column's history: every fix that names it or changed a cell of it
     #[arg(long = "col", value_name = "COLUMN", conflicts_with = "column")]
     col: Option<String>,
     /// Tell the story up to this revision (default latest)
@@ -86,10 +86,18 @@ fn print_event(o: &mut dyn Write, e: &FixEvent, with_change: bool) -> Result<()>
             .iter()
             .map(|x| format!("commit {}", x.seq))
             .collect();
+        // An answer to a carried conflict has a reason of its own, given in this commit.
+        let answer = e.why.starts_with(emend::ledger::carry::ANSWER_PREFIX)
+            || e.why.starts_with("carried conflict left open");
         writeln!(
             o,
-            "    carried from {} (the reason was given there)",
-            chain.join(" via ")
+            "    carried from {}{}",
+            chain.join(" via "),
+            if answer {
+                " (the reason above was given when the conflict was answered)"
+            } else {
+                " (the reason was given there)"
+            }
         )?;
     }
     if let Some(c) = &e.consulted {
@@ -144,11 +152,15 @@ pub fn why_cmd(cx: &CliContext, a: WhyArgs) -> Result<i32> {
             paint(BOLD, col)
         )?;
         if list.is_empty() {
-            writeln!(o, "  no distrust, recode or missing-code fix")?;
+            writeln!(o, "  no fix named this column or changed a cell of it")?;
         }
         for (e, n) in &list {
             print_event(&mut o, e, false)?;
-            writeln!(o, "    {n} cells changed")?;
+            writeln!(
+                o,
+                "    {} changed",
+                emend::model::quantity(*n as u64, "cell", "cells")
+            )?;
         }
         return Ok(0);
     }
@@ -242,7 +254,8 @@ pub fn why_cmd(cx: &CliContext, a: WhyArgs) -> Result<i32> {
     )?;
     // A carried fix that met this cell changed at source: a decision still owed.
     let open = reader.conflicts()?;
-    for (i, c) in open.iter().enumerate() {
+    for c in &open {
+        let i = c.id;
         if c.conflict.fix.table != story.table {
             continue;
         }
@@ -252,7 +265,7 @@ pub fn why_cmd(cx: &CliContext, a: WhyArgs) -> Result<i32> {
                     o,
                     "  {} {}: carried fix '{}' changed {} to {} on an earlier extract; this extract holds {}",
                     paint(BAD, "open conflict"),
-                    i + 1,
+                    i,
                     c.conflict.fix.action.describe(),
                     super::out::quoted(&x.was),
                     super::out::quoted(&x.fixed),
@@ -260,8 +273,8 @@ pub fn why_cmd(cx: &CliContext, a: WhyArgs) -> Result<i32> {
                 )?;
                 writeln!(
                     o,
-                    "    answer it with 'emend resolve {} --apply | --keep-source | --set VALUE | --defer --why \"...\"'",
-                    i + 1
+                    "    answer it with 'emend resolve {} --apply | --keep-source | --set VALUE | --missing | --defer --why \"...\"'",
+                    i
                 )?;
             }
         }

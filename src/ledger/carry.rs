@@ -32,6 +32,9 @@ pub enum Outcome {
     ColumnGone,
     /// Carried onto this extract before, by the commit named (or still pending or open).
     AlreadyCarried(Option<u64>),
+    /// A cell of a fix that is evaluated afresh on each extract (recode, missing, a condition,
+    /// a rule, duplicates) now holds another value: the fix decides anew, nothing is owed.
+    ChangedAtSource,
 }
 
 impl Outcome {
@@ -44,6 +47,7 @@ impl Outcome {
             Outcome::RowGone => "row gone",
             Outcome::ColumnGone => "column gone",
             Outcome::AlreadyCarried(_) => "already carried",
+            Outcome::ChangedAtSource => "changed at source",
         }
     }
 }
@@ -317,6 +321,14 @@ pub fn carry(
         }
         let mut cells = Vec::new();
         let mut touched: HashSet<String> = HashSet::new();
+        // Fixes evaluated afresh on each extract owe no decision when a cell changed.
+        let afresh = matches!(
+            fix.action,
+            FixAction::Recode { .. } | FixAction::Missing { .. }
+        ) || matches!(
+            fix.action.rows(),
+            Some(Rows::Where(_) | Rows::Duplicates(_) | Rows::Breaking { .. })
+        );
         for e in &edits {
             let mapped = map_row(&e.row);
             let now = mapped
@@ -327,6 +339,7 @@ pub fn carry(
                 (None, _) | (_, None) => Outcome::RowGone,
                 (Some(_), Some(v)) if *v == e.new => Outcome::FixedAtSource,
                 (Some(_), Some(v)) if *v == e.old => Outcome::Applied,
+                _ if afresh => Outcome::ChangedAtSource,
                 _ => Outcome::Conflict,
             };
             if let Some(r) = &mapped {
@@ -478,6 +491,10 @@ pub fn carry(
     Ok(out)
 }
 
+/// How the reason of a fix that answers a carried conflict begins: the reason is the answer's,
+/// given when it was answered, not the carried fix's.
+pub const ANSWER_PREFIX: &str = "answer to a carried conflict: ";
+
 /// How the analyst answers a carried conflict.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum Resolution {
@@ -532,7 +549,7 @@ pub fn answer(conflict: &crate::model::Conflict, how: &Resolution, why: &str) ->
             "carried conflict left open ({}): {why}",
             conflict.fix.action.describe()
         ),
-        _ => why.trim().to_owned(),
+        _ => format!("{ANSWER_PREFIX}{}", why.trim()),
     };
     Fix {
         table: conflict.fix.table.clone(),
@@ -544,8 +561,9 @@ pub fn answer(conflict: &crate::model::Conflict, how: &Resolution, why: &str) ->
     }
 }
 
-/// Answer the `n`th open conflict (1-based, as `status` numbers them): records the answering
-/// fix as pending and closes the conflict (discarding that fix opens it again).
+/// Answer open conflict number `n` (as `status` numbers them; a conflict keeps its number
+/// while others are answered): records the answering fix as pending and closes the conflict
+/// (discarding that fix opens it again, under a new number).
 pub fn resolve_conflict(
     store: &mut Store,
     n: usize,
@@ -553,19 +571,45 @@ pub fn resolve_conflict(
     why: &str,
     now: &str,
     by: Option<&crate::model::Recorder>,
+    despite: Option<&str>,
 ) -> Result<Fix> {
     if why.trim().is_empty() {
         return Err(Error::EmptyReason);
     }
     let tx = store.transaction()?;
     let open = tx.read().conflicts()?;
-    let Some(c) = n.checked_sub(1).and_then(|i| open.get(i)) else {
-        return Err(Error::Invalid(format!(
-            "there is no open conflict {n}: {} open ('emend status' lists them)",
-            open.len()
-        )));
+    let Some(c) = open.iter().find(|c| c.id == n as i64) else {
+        let numbers: Vec<String> = open.iter().map(|c| c.id.to_string()).collect();
+        return Err(Error::Invalid(if numbers.is_empty() {
+            format!("there is no open conflict {n}: none is open")
+        } else {
+            format!(
+                "there is no open conflict {n}: the open ones are {} ('emend status' lists them)",
+                numbers.join(", ")
+            )
+        }));
     };
-    let fix = answer(&c.conflict, &how, why);
+    let mut fix = answer(&c.conflict, &how, why);
+    // A value set by hand meets the rules in force, as `set` does.
+    if let Resolution::Set(Some(v)) = &how
+        && let Some(column) = fix.action.column().map(str::to_owned)
+    {
+        let reader = tx.read();
+        let head = reader.head()?.map_or(0, |(s, _)| s);
+        if let Some((_, name, text)) = crate::query::rules_at(&reader, &fix.table, head)? {
+            let rules = crate::checks::RuleSet::parse(&text).map_err(|e| {
+                Error::Corrupt(format!("stored rules file {name} does not parse: {e}"))
+            })?;
+            if let Some((rule, wrong)) = rules.breaks(&column, v) {
+                if despite != Some(rule.as_str()) {
+                    return Err(Error::Invalid(format!(
+                        "{wrong}: the value breaks rule {rule} of {name}; give --despite {rule} to set it on purpose"
+                    )));
+                }
+                fix.why = format!("{} [despite rule {rule}]", fix.why);
+            }
+        }
+    }
     let note = format!(
         "answers a carried conflict: {}",
         c.conflict.fix.action.describe()

@@ -491,24 +491,45 @@ pub fn store_file(tx: &WriteTx<'_>, path: &Path) -> Result<(BlobId, u64)> {
     Ok((id, n_bytes))
 }
 
-/// Drop every pending fix. Returns how many were dropped.
-pub fn discard(store: &mut Store) -> Result<usize> {
-    let tx = store.transaction()?;
-    let n = tx.clear_pending()?;
-    tx.commit()?;
-    Ok(n)
+/// Whether `me` may drop a pending fix: their own, or one recorded without an identity.
+fn mine(p: &crate::store::PendingFix, me: Option<&[u8; 32]>) -> bool {
+    match (&p.by, me) {
+        (None, _) => true,
+        (Some(b), Some(k)) => b.key == *k,
+        (Some(_), None) => false,
+    }
 }
 
-/// Drop the `n`th pending fix (1-based, in the order `status` lists them) and return it.
-pub fn discard_one(store: &mut Store, n: usize) -> Result<Fix> {
+/// Drop the pending fixes `me` recorded (and those recorded without an identity). Returns
+/// how many were dropped, and how many of other people's were left.
+pub fn discard(store: &mut Store, me: Option<&[u8; 32]>) -> Result<(usize, usize)> {
+    let tx = store.transaction()?;
+    let pending = tx.read().pending()?;
+    let (own, others): (Vec<_>, Vec<_>) = pending.iter().partition(|p| mine(p, me));
+    for p in &own {
+        tx.drop_pending(p.id)?;
+    }
+    tx.commit()?;
+    Ok((own.len(), others.len()))
+}
+
+/// Drop the `n`th pending fix (1-based, in the order `status` lists them) and return it; a
+/// fix another person recorded is theirs to drop.
+pub fn discard_one(store: &mut Store, n: usize, me: Option<&[u8; 32]>) -> Result<Fix> {
     let tx = store.transaction()?;
     let pending = tx.read().pending()?;
     let Some(p) = n.checked_sub(1).and_then(|i| pending.get(i)) else {
         return Err(Error::Invalid(format!(
-            "there is no pending fix {n}: {} are pending ('emend status' lists them)",
-            pending.len()
+            "there is no pending fix {n}: {} pending ('emend status' lists them)",
+            crate::model::quantity(pending.len() as u64, "fix is", "fixes are")
         )));
     };
+    if !mine(p, me) {
+        return Err(Error::Invalid(format!(
+            "pending fix {n} was recorded by {}; they discard it themselves",
+            p.by.as_ref().map_or("someone else", |b| b.name.as_str())
+        )));
+    }
     tx.drop_pending(p.id)?;
     let fix = p.fix.clone();
     tx.commit()?;
@@ -591,9 +612,10 @@ pub fn commit_pending(
     commit_pending_deferring(store, message, ctx, false)
 }
 
-/// Commit every pending fix as one signed commit; refused while a carried conflict is open,
-/// unless `defer` records each as deferred (a signed note on its cells) in the same commit.
-/// Refused, too, when another person recorded some of the pending fixes: they sign their own.
+/// Commit the signer's pending fixes (and those recorded without an identity) as one signed
+/// commit; fixes another person recorded stay pending for them to sign. Refused while a
+/// carried conflict is open, unless `defer` records each as deferred (a signed note on its
+/// cells) in the same commit.
 pub fn commit_pending_deferring(
     store: &mut Store,
     message: &str,
@@ -607,26 +629,17 @@ pub fn commit_pending_deferring(
     }
     let tx = store.transaction()?;
     let reader = tx.read();
-    let mut pending = reader.pending()?;
     let signer = ctx.signer.public_key();
-    let others: Vec<String> = pending
-        .iter()
-        .enumerate()
-        .filter_map(|(i, p)| {
-            let by = p.by.as_ref()?;
-            (by.key != signer).then(|| format!("{} (recorded by {})", i + 1, by.name))
-        })
+    // Nobody signs another person's fixes under their own message.
+    let mut pending: Vec<_> = reader
+        .pending()?
+        .into_iter()
+        .filter(|p| p.by.as_ref().is_none_or(|b| b.key == signer))
         .collect();
-    if !others.is_empty() {
-        return Err(Error::Invalid(format!(
-            "pending fixes {} were recorded by someone else; each person commits their own fixes (or drops one with 'emend discard N')",
-            others.join(", ")
-        )));
-    }
     let conflicts = reader.conflicts()?;
     if !conflicts.is_empty() && !defer {
         return Err(Error::Invalid(format!(
-            "{} open; answer each with 'emend resolve N --apply | --keep-source | --set VALUE | --defer --why ...' ('emend status' lists them), or commit with --defer-conflicts to record them all as deferred",
+            "{} open; answer each with 'emend resolve N --apply | --keep-source | --set VALUE | --missing | --defer --why ...' ('emend status' lists them), or commit with --defer-conflicts to record them all as deferred",
             crate::model::quantity(
                 conflicts.len() as u64,
                 "carried conflict is",
@@ -652,6 +665,13 @@ pub fn commit_pending_deferring(
         tx.drop_conflict(c.id)?;
     }
     if pending.is_empty() {
+        let others = reader.pending()?.len();
+        if others > 0 {
+            return Err(Error::Invalid(format!(
+                "{} pending, none recorded by you: the person who recorded them commits them",
+                crate::model::quantity(others as u64, "fix is", "fixes are")
+            )));
+        }
         return Err(Error::NothingPending);
     }
     let head = reader.head()?.map(|(s, _)| s).unwrap_or(0);

@@ -10,7 +10,7 @@ use super::rev::Rev;
 use super::version::Version;
 use crate::error::{Error, Result};
 use crate::hash::CommitId;
-use crate::model::{Author, Change, Evidence, FixAction, RowId};
+use crate::model::{Author, Change, Evidence, RowId};
 use crate::signing;
 use crate::store::Reader;
 
@@ -280,16 +280,13 @@ pub fn why_column(
         };
         if let Change::Fixes(list) = decode(&stored)?.change {
             for (i, r) in list.iter().enumerate() {
+                // Every fix that names the column or changed a cell of it.
                 let about_column = r.fix.table == table
-                    && r.fix.action.column() == Some(column)
-                    && matches!(
-                        r.fix.action,
-                        FixAction::Recode { .. }
-                            | FixAction::Missing { .. }
-                            | FixAction::Distrust { .. }
-                    );
+                    && (r.fix.action.column() == Some(column)
+                        || r.edits.iter().any(|e| e.column == column));
                 if about_column {
-                    out.push((ev.event(seq, i as u64)?, r.edits.len()));
+                    let n = r.edits.iter().filter(|e| e.column == column).count();
+                    out.push((ev.event(seq, i as u64)?, n));
                 }
             }
         }

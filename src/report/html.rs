@@ -665,7 +665,7 @@ fn write_columns(view: &ReportView, out: &mut dyn Write) -> io::Result<()> {
         "<p><em>Before</em> is the raw extract, <em>after</em> is this version. Quartiles are \
          Hyndman–Fan type 7. Whiskers reach the most extreme values inside Tukey's inner fences \
          (1.5 × IQR beyond the quartiles); circles are the values outside them. Before and after \
-         box plots share one value axis unless their ranges differ more than tenfold; each \
+         box plots share one value axis unless one range is more than twice the other; each \
          histogram has its own axis, printed beneath it.</p>"
     )?;
     write_legend(out)?;
@@ -870,7 +870,7 @@ fn write_column(i: usize, c: &ColumnView, out: &mut dyn Write) -> io::Result<()>
         }
         let boxes = if split {
             "box plots of before and after, each on its own axis because the raw values span \
-             more than ten times the range of the cleaned ones"
+             more than twice the range of the cleaned ones (one axis would squash the narrower)"
         } else {
             "box plots (before above, after below) on one value axis"
         };

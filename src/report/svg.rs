@@ -157,7 +157,8 @@ impl Axis {
 }
 
 /// Whether two summaries span ranges so different (more than [`SPLIT_RATIO`] times) that one
-/// shared axis would squash the narrower one; raw sentinels such as -9999 do this.
+/// shared axis would squash the narrower one to less than half the width; raw sentinels such
+/// as -9999, or one shifted decimal, do this.
 pub fn ranges_differ(a: &NumericView, b: &NumericView) -> bool {
     let span = |n: &NumericView| (n.max - n.min).abs();
     let (wide, narrow) = if span(a) >= span(b) {
@@ -170,7 +171,7 @@ pub fn ranges_differ(a: &NumericView, b: &NumericView) -> bool {
 }
 
 /// See [`ranges_differ`].
-pub const SPLIT_RATIO: f64 = 10.0;
+pub const SPLIT_RATIO: f64 = 2.0;
 
 fn all_finite(n: &NumericView) -> bool {
     [

@@ -394,7 +394,7 @@ fn key_columns_cannot_be_changed() {
 fn commit_needs_pending_fixes_and_a_message() {
     let dir = store();
     refused(&dir, &["commit", "-m", "  "], &["message"]);
-    dir.cmd(["discard"]).ok().says(&["dropped 1 pending fixes"]);
+    dir.cmd(["discard"]).ok().says(&["dropped 1 pending fix"]);
     refused(
         &dir,
         &["commit", "-m", "nothing"],

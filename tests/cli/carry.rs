@@ -124,10 +124,15 @@ fn every_outcome_and_a_chain_of_origins() {
     .says(&["answered conflict 1", "keep ph as it is in rows C"]);
     dir.cmd(["status"]).ok().says(&["3 pending fixes"]);
     dir.cmd(["discard", "3"]).ok();
-    dir.cmd(["status"]).ok().says(&["1 open conflict"]);
+    // Reopened under a new number: numbers never move under the user's feet.
+    dir.cmd(["status"])
+        .ok()
+        .says(&["1 open conflict", "conflict 2. set C"]);
+    dir.cmd(["resolve", "1", "--set", "6.5", "--why", "x"])
+        .fails(&["no open conflict 1: the open ones are 2"]);
     dir.cmd([
         "resolve",
-        "1",
+        "2",
         "--set",
         "6.5",
         "--why",
