@@ -159,6 +159,19 @@ pub enum Error {
     /// The store is damaged in a way that stops the operation.
     #[error("store is damaged: {0}")]
     Corrupt(String),
+    /// What the store holds disagrees with its signed commits: stored bytes, a derived row or
+    /// the chain itself was changed outside emend. Reads refuse rather than show it.
+    #[error("the store was changed outside emend: {0}")]
+    Tampered(String),
+    /// The store file holds schema objects emend did not make (a trigger, a view, an index,
+    /// changed columns): emend refuses to run anything in it.
+    #[error("{path} holds what emend never made: {}", objects.join("; "))]
+    ForeignSchema {
+        /// The store file.
+        path: PathBuf,
+        /// Each object, named with what is wrong with it.
+        objects: Vec<String>,
+    },
     /// Another process holds the store's write lock for too long.
     #[error("the store is busy: another emend process is writing")]
     Busy,
@@ -197,6 +210,8 @@ impl Error {
             Error::NothingPending => "record a fix first (set, recode, missing, tidy, exclude, keep, note, …; emend --help lists them)".into(),
             Error::Busy => "wait for the other process to finish and try again".into(),
             Error::Corrupt(_) => "run 'emend verify' for a full list of problems".into(),
+            Error::Tampered(_) => "nothing was shown or written from it; 'emend verify' lists every problem, and 'emend verify --receipt FILE' shows whether history was cut. Keep this file for the audit and work from a copy you trust".into(),
+            Error::ForeignSchema { .. } => "a trigger or view in the store file could change what emend writes or shows, so nothing was run; keep the file for the audit and work from a copy you trust ('emend verify' lists what else changed)".into(),
             Error::BadExtract { .. } => {
                 "nothing was stored; fix the file (or give --delimiter / --encoding) and ingest again".into()
             }

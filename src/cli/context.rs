@@ -31,8 +31,18 @@ impl CliContext {
         &self.cwd
     }
 
-    /// Open the store for the current folder (found by walking up).
+    /// Open the store for the current folder (found by walking up), after checking its chain
+    /// and derived rows against the signed commits (`query::guard`): no command shows or
+    /// builds on what the store holds unless the signed history says it.
     pub fn store(&self) -> Result<Store> {
+        let store = self.store_unchecked()?;
+        emend::query::guard::check(&store.read())?;
+        Ok(store)
+    }
+
+    /// Open the store without the history check: for `verify`, which checks everything and
+    /// lists what it finds.
+    pub fn store_unchecked(&self) -> Result<Store> {
         Ok(Store::discover(&self.cwd)?)
     }
 

@@ -250,7 +250,16 @@ pub fn report(cx: &CliContext, a: ReportArgs) -> Result<i32> {
     let started = std::time::Instant::now();
     let verify =
         emend::query::verify::verify(&reader, &emend::query::verify::Trust::Store, &mut |_| {})?;
-    let view = emend::views::audit::report_view(&reader, &a.table, rev, &verify, &cx.now()?)?;
+    let mut view =
+        emend::views::audit::report_view(&reader, &a.table, rev, &verify, &cx.now()?)?;
+    if let Some(id) = cx.try_identity()? {
+        let name = match &id.email {
+            Some(e) => format!("{} <{e}>", id.name),
+            None => id.name.clone(),
+        };
+        view.verify.receipt =
+            Some(emend::query::receipt::make(&reader, &id.signer, &name, &cx.now()?)?.text());
+    }
     let mut f = AtomicFile::create(&a.output)?;
     emend::report::render_html(&view, &mut f)?;
     f.finish()?;

@@ -14,6 +14,7 @@ mod id;
 mod ingest;
 mod out;
 mod profile;
+mod receipt;
 mod show;
 mod tag;
 mod trust;
@@ -121,6 +122,9 @@ enum Command {
     Export(export::ExportArgs),
     /// Write a stored evidence file back out, checked against its hash
     Evidence(export::EvidenceArgs),
+    /// A signed receipt of the store's head, to keep outside the store ('verify --receipt'
+    /// shows whether history was cut since)
+    Receipt(receipt::ReceiptArgs),
     /// Write one self-contained HTML report of a version for an auditor
     Report(export::ReportArgs),
     /// Vouch for another signing key in a signed commit (key rotation, a new colleague)
@@ -192,6 +196,29 @@ fn is_broken_pipe(err: &anyhow::Error) -> bool {
 
 fn run(cli: Cli) -> Result<i32> {
     let cx = &CliContext::from_env()?;
+    // Commands that may add a commit add a receipt of the new head to the user's receipt
+    // file, when one is named ('receipt --keep-in').
+    let may_commit = matches!(
+        cli.command,
+        Command::Ingest(_)
+            | Command::Commit(_)
+            | Command::Tag(_)
+            | Command::Trust(_)
+            | Command::Rules(_)
+            | Command::Carry(_)
+            | Command::Resolve(_)
+            | Command::Withdraw(_)
+            | Command::Decisions(_)
+    );
+    let before = if may_commit { receipt::head_before(cx) } else { None };
+    let code = dispatch(cx, cli)?;
+    if may_commit {
+        receipt::after_command(cx, before);
+    }
+    Ok(code)
+}
+
+fn dispatch(cx: &CliContext, cli: Cli) -> Result<i32> {
     match cli.command {
         Command::Init => ingest::init(cx),
         Command::Id(IdCommand::New(a)) => id::new(cx, a),
@@ -229,6 +256,7 @@ fn run(cli: Cli) -> Result<i32> {
         Command::Trust(a) => trust::trust_key(cx, a),
         Command::Report(a) => export::report(cx, a),
         Command::Evidence(a) => export::evidence(cx, a),
+        Command::Receipt(a) => receipt::receipt_cmd(cx, a),
         Command::Demo(a) => demo::run(cx, a),
     }
 }

@@ -16,9 +16,115 @@ pub struct VerifyArgs {
     /// instead of the store's own list
     #[arg(long, value_name = "FILE")]
     trust: Option<PathBuf>,
+    /// Check receipts kept outside the store (made by 'emend receipt'): the store must still
+    /// hold each receipted commit at its number, and its history must extend it
+    #[arg(long, value_name = "FILE", num_args = 1..)]
+    receipt: Vec<PathBuf>,
     /// Print JSON (docs/json.md)
     #[arg(long)]
     json: bool,
+}
+
+/// One receipt's check, for printing.
+struct ReceiptLine {
+    file: String,
+    line: usize,
+    seq: Option<u64>,
+    ok: bool,
+    what: String,
+}
+
+/// Check every receipt in `files`; what is wrong goes into the report's problems.
+fn check_receipts(
+    reader: &emend::store::Reader<'_>,
+    files: &[PathBuf],
+    report: &mut emend::query::VerifyReport,
+) -> Result<Vec<ReceiptLine>> {
+    use emend::query::receipt::{Standing, check, parse_all};
+    let mut lines = Vec::new();
+    for file in files {
+        let text = std::fs::read_to_string(file)
+            .with_context(|| format!("reading the receipts in {}", file.display()))?;
+        let name = file.display().to_string();
+        let parsed = parse_all(&text);
+        if parsed.is_empty() {
+            bail!(
+                "{} holds no receipt (a receipt starts with the line '{}')",
+                file.display(),
+                emend::query::receipt::RECEIPT_HEADER
+            );
+        }
+        for (line, r) in parsed {
+            let (seq, ok, what) = match r {
+                Err(why) => (None, false, format!("not a receipt: it {why}")),
+                Ok(r) => {
+                    let at = format!("commit {} ({})", r.seq, r.id.short());
+                    match check(reader, &r)? {
+                        Standing::Holds { head } => (
+                            Some(r.seq),
+                            true,
+                            if head == r.seq {
+                                format!("{at} is the store's head, as receipted by {} at {}", r.signer_name, r.made_at)
+                            } else {
+                                format!("{at} is held; the history extends it to commit {head} (receipted by {} at {})", r.signer_name, r.made_at)
+                            },
+                        ),
+                        Standing::Cut { head } => (
+                            Some(r.seq),
+                            false,
+                            format!(
+                                "HISTORY CUT: the receipt of {} at {} names {at}, but the store ends at commit {head}: {} gone, or the store was replaced by an older copy",
+                                r.signer_name,
+                                r.made_at,
+                                if r.seq == head + 1 {
+                                    format!("commit {} is", r.seq)
+                                } else {
+                                    format!("commits {} to {} are", head + 1, r.seq)
+                                }
+                            ),
+                        ),
+                        Standing::Rewritten { found } => (
+                            Some(r.seq),
+                            false,
+                            format!(
+                                "HISTORY REWRITTEN: the receipt names {at}, the store holds {} at that number: history was replaced from commit {} or before",
+                                found.short(),
+                                r.seq
+                            ),
+                        ),
+                        Standing::OtherHistory { found } => (
+                            Some(r.seq),
+                            false,
+                            format!(
+                                "the receipt is of another history (its commit 1 is {}, this store's is {})",
+                                r.history.short(),
+                                found.map(|f| f.short()).unwrap_or_else(|| "none".into())
+                            ),
+                        ),
+                        Standing::BadSignature => (
+                            Some(r.seq),
+                            false,
+                            "the receipt's signature does not verify: the receipt itself was altered".into(),
+                        ),
+                    }
+                }
+            };
+            if !ok {
+                report.problems.push(emend::query::verify::Problem {
+                    object: format!("receipt at {name}:{line}"),
+                    what: what.clone(),
+                });
+            }
+            lines.push(ReceiptLine {
+                file: name.clone(),
+                line,
+                seq,
+                ok,
+                what,
+            });
+        }
+    }
+    Ok(lines)
 }
 
 fn read_keys(path: &PathBuf) -> Result<Vec<[u8; 32]>> {
@@ -51,7 +157,15 @@ fn read_keys(path: &PathBuf) -> Result<Vec<[u8; 32]>> {
 }
 
 pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
-    let store = cx.store()?;
+    // A store holding schema objects emend never made is refused by every other command;
+    // verify opens it for reading only, runs nothing in it, and lists them with the rest.
+    let store = match cx.store_unchecked() {
+        Err(e) => match e.downcast_ref::<emend::Error>() {
+            Some(emend::Error::ForeignSchema { path, .. }) => emend::store::Store::open_for_audit(path)?,
+            _ => return Err(e),
+        },
+        Ok(s) => s,
+    };
     let trust = match &a.trust {
         Some(p) => Trust::Keys(read_keys(p)?),
         None => Trust::Store,
@@ -62,7 +176,8 @@ pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
             let _ = write!(anstream::stderr(), "\rverifying {stage}…          ");
         }
     };
-    let report = run_verify(&store.read(), &trust, &mut progress)?;
+    let mut report = run_verify(&store.read(), &trust, &mut progress)?;
+    let receipts = check_receipts(&store.read(), &a.receipt, &mut report)?;
     if show_progress {
         let _ = write!(anstream::stderr(), "\r{}\r", " ".repeat(40));
     }
@@ -83,6 +198,20 @@ pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
                 "table_versions": report.n_versions,
                 "index_rows": report.n_index_rows,
             },
+            "receipts": receipts.iter().map(|r| serde_json::json!({
+                "file": r.file, "line": r.line, "commit": r.seq, "holds": r.ok, "says": r.what,
+            })).collect::<Vec<_>>(),
+            "signers": report.trust_paths.iter().map(|t| serde_json::json!({
+                "key": data_encoding::HEXLOWER.encode(&t.key),
+                "name": t.name,
+                "commits": t.n_signed,
+                "trusted": !t.chain.is_empty(),
+                "chain": t.chain.iter().map(|s| serde_json::json!({
+                    "key": data_encoding::HEXLOWER.encode(&s.key),
+                    "name": s.name,
+                    "vouched_in_commit": s.by_commit,
+                })).collect::<Vec<_>>(),
+            })).collect::<Vec<_>>(),
             "problems": list(&report.problems),
             "untrusted": list(&report.untrusted),
             "warnings": list(&report.warnings),
@@ -141,6 +270,52 @@ pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
                 "  next: trust is never given backwards, so these commits stay as they are; for a signer's later commits, a trusted signer runs 'emend trust KEY --name NAME --why REASON' (unless it is trusted already); an auditor who accepts these commits lists the key in 'emend verify --trust KEYS.txt'"
             };
             writeln!(o, "{next}")?;
+        }
+        let roots = if a.trust.is_some() {
+            "a key in the list given"
+        } else {
+            "a root of this store"
+        };
+        for t in &report.trust_paths {
+            let fp = emend::signing::fingerprint(&t.key);
+            let how = match t.chain.len() {
+                0 => "not trusted".to_string(),
+                1 => roots.to_string(),
+                _ => format!(
+                    "trusted through {}",
+                    t.chain
+                        .iter()
+                        .map(|s| match s.by_commit {
+                            None => format!("{} ({roots})", out::clean(&s.name)),
+                            Some(c) => format!("{}, vouched for in commit {c}", out::clean(&s.name)),
+                        })
+                        .collect::<Vec<_>>()
+                        .join(" → ")
+                ),
+            };
+            writeln!(
+                o,
+                "{} {} ({fp}), {}: {how}",
+                paint(BOLD, "signer:"),
+                out::clean(&t.name),
+                q(t.n_signed, "commit", "commits")
+            )?;
+        }
+        for r in receipts.iter().filter(|r| r.ok) {
+            writeln!(
+                o,
+                "{} {}:{}: {}",
+                paint(GOOD, "receipt holds:"),
+                out::clean(&r.file),
+                r.line,
+                out::clean(&r.what)
+            )?;
+        }
+        if a.receipt.is_empty() && report.is_clean() {
+            writeln!(
+                o,
+                "  (a store cut at its end, or replaced by an older copy, still verifies: keep receipts outside it with 'emend receipt' and check them with 'verify --receipt FILE')"
+            )?;
         }
         for p in &report.warnings {
             writeln!(

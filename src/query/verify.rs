@@ -43,6 +43,34 @@ pub struct VerifyReport {
     /// What an auditor should see but that proves nothing wrong (a commit dated before its
     /// parent: clocks drift).
     pub warnings: Vec<Problem>,
+    /// For each key that signed a commit: how it came to be trusted, root first.
+    pub trust_paths: Vec<TrustPath>,
+}
+
+/// How one signing key is trusted: a root of the trust list, or vouched for by a trust commit
+/// of a key trusted at that commit, which is itself trusted through its own path.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct TrustPath {
+    /// The key.
+    pub key: [u8; 32],
+    /// The name it signed with.
+    pub name: String,
+    /// The commits it signed.
+    pub n_signed: u64,
+    /// Root first: the root key with its name, then each (trust commit, key vouched for by
+    /// it) down to this key. Empty when the key is not trusted at all.
+    pub chain: Vec<TrustStep>,
+}
+
+/// One link of a [`TrustPath`].
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct TrustStep {
+    /// The key trusted at this step.
+    pub key: [u8; 32],
+    /// Its name, as its trust commit or its own commits give it.
+    pub name: String,
+    /// The trust commit that vouched for it; `None` for the root.
+    pub by_commit: Option<u64>,
 }
 
 impl VerifyReport {
@@ -100,7 +128,20 @@ pub fn verify(
     // Validly signed commits, judged once every trust commit and revocation is known (a
     // revocation may reach back to commits before it).
     let mut signed: Vec<(u64, [u8; 32], String)> = Vec::new();
+    // Who vouched for each key not in the roots: key -> (trust commit, voucher).
+    let mut vouched_by: HashMap<[u8; 32], (u64, [u8; 32])> = HashMap::new();
+    let mut names: HashMap<[u8; 32], String> = signers
+        .iter()
+        .map(|s| (s.key, s.name.clone()))
+        .collect();
 
+    progress("schema");
+    for object in reader.foreign_objects()? {
+        report.problem(
+            "store file",
+            format!("holds {object}: emend runs nothing it did not make"),
+        );
+    }
     progress("commits");
     let mut bodies: Vec<CommitBody> = Vec::new();
     let mut prev: Option<CommitId> = None;
@@ -187,8 +228,13 @@ pub fn verify(
         // by a trusted signer ends a key's trust from the commit it names.
         let vouched = signing::verify(&body.author.key, stored.id.as_bytes(), &stored.signature)
             && trusts(&trusted, &body.author.key, stored.seq);
+        names.entry(body.author.key).or_insert_with(|| body.author.name.clone());
         match &body.change {
             Change::Trust(t) if vouched => {
+                if !trusted.contains_key(&t.key) {
+                    vouched_by.insert(t.key, (stored.seq, body.author.key));
+                    names.entry(t.key).or_insert_with(|| t.name.clone());
+                }
                 trusted.entry(t.key).or_insert((stored.seq + 1, None));
             }
             Change::Revoke(r) if vouched => {
@@ -241,6 +287,47 @@ pub fn verify(
         }
         prev = Some(stored.id);
         bodies.push(body);
+    }
+    // The chain of trust of every key that signed: followed from the key back to its root.
+    let mut by_key: Vec<([u8; 32], String, u64)> = Vec::new();
+    for (_, key, author) in &signed {
+        match by_key.iter_mut().find(|(k, _, _)| k == key) {
+            Some(entry) => entry.2 += 1,
+            None => by_key.push((*key, author.clone(), 1)),
+        }
+    }
+    for (key, name, n_signed) in by_key {
+        let mut chain = Vec::new();
+        let mut at = key;
+        loop {
+            match vouched_by.get(&at) {
+                Some(&(seq, voucher)) if chain.len() < 10_000 => {
+                    chain.push(TrustStep {
+                        key: at,
+                        name: names.get(&at).cloned().unwrap_or_default(),
+                        by_commit: Some(seq),
+                    });
+                    at = voucher;
+                }
+                _ => break,
+            }
+        }
+        if trusted.get(&at).is_some_and(|(from, _)| *from == 0) {
+            chain.push(TrustStep {
+                key: at,
+                name: names.get(&at).cloned().unwrap_or_default(),
+                by_commit: None,
+            });
+            chain.reverse();
+        } else {
+            chain.clear();
+        }
+        report.trust_paths.push(TrustPath {
+            key,
+            name,
+            n_signed,
+            chain,
+        });
     }
     for (seq, key, author) in signed {
         if !trusts(&trusted, &key, seq) {

@@ -241,6 +241,18 @@ impl Version {
         Ok((h.finish(self.header(), &self.distrusted), n))
     }
 
+    /// The version hash and row count the signed commits record for this version: the last
+    /// commit at or before it that recorded one for the table (the ingest for a raw version).
+    pub fn recorded(&self, reader: &Reader<'_>) -> Result<Option<(VersionHash, u64)>> {
+        let upto = if self.raw { self.ingest_seq } else { self.seq };
+        reader.recorded_version(&self.table, upto)
+    }
+
+    /// Finish a hash fed with every row of this version (see [`Version::hash`]).
+    pub fn finish_hash(&self, h: VersionHashBuilder) -> VersionHash {
+        h.finish(self.header(), &self.distrusted)
+    }
+
     /// Find one row by id.
     pub fn find_row(&self, reader: &Reader<'_>, row: &RowId) -> Result<Option<FoundRow>> {
         let mut found = None;

@@ -127,7 +127,7 @@ footer{margin-top:3rem;padding-top:.75rem;border-top:2px solid var(--ink);font-s
 /// #         n_bytes: 10, n_rows: 1, n_columns: 1, ingest_seq: 1 },
 /// #     version: VersionView { seq: 1, id: "cd".repeat(32), label: "latest".into(),
 /// #         time: "2025-03-01T09:00:00Z".into(), version_hash: "ef".repeat(32) },
-/// #     verify: VerifyView { intact: true, checked: "1 commit".into(), problems: vec![] },
+/// #     verify: VerifyView { intact: true, checked: "1 commit".into(), problems: vec![], receipt: None },
 /// #     commits: vec![], cells_changed: 0, kept: vec![], noted: vec![], conflicts: vec![],
 /// #     excluded_rows: vec![], distrusted_columns: vec![],
 /// #     columns: vec![], open_problems: vec![],
@@ -390,6 +390,14 @@ fn write_about(view: &ReportView, out: &mut dyn Write) -> io::Result<()> {
         writeln!(out, "</ul>")?;
     }
     writeln!(out, "</td></tr>")?;
+    if let Some(r) = &view.verify.receipt {
+        row_th(out, "Receipt")?;
+        writeln!(
+            out,
+            "Signed receipt of the store as this report was made; saved to a file, <code>emend verify --receipt FILE</code> shows whether the history was cut since.<pre class=\"receipt\">{}</pre></td></tr>",
+            Esc(r)
+        )?;
+    }
     writeln!(out, "</tbody></table>")?;
     writeln!(out, "</section>")
 }

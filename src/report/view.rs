@@ -84,6 +84,9 @@ pub struct VerifyView {
     pub checked: String,
     /// One line per problem found; empty when intact.
     pub problems: Vec<String>,
+    /// A signed receipt of the store's head when the report was made (`emend receipt`), to
+    /// check later with `verify --receipt`; none when no identity was at hand to sign it.
+    pub receipt: Option<String>,
 }
 
 /// Whether a commit's signature verified, and against whom.

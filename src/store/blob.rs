@@ -54,6 +54,9 @@ impl ChunkCache {
 /// `Read` over a stored file's bytes. Memory: the chunk cache.
 pub struct BlobReader<'a> {
     reader: Reader<'a>,
+    id: BlobId,
+    hasher: blake3::Hasher,
+    checked: bool,
     chunks: std::vec::IntoIter<ChunkId>,
     cache: ChunkCache,
     current: Rc<Vec<u8>>,
@@ -61,9 +64,12 @@ pub struct BlobReader<'a> {
 }
 
 impl<'a> BlobReader<'a> {
-    pub(super) fn new(reader: Reader<'a>, chunks: Vec<ChunkId>) -> Self {
+    pub(super) fn new(reader: Reader<'a>, id: BlobId, chunks: Vec<ChunkId>) -> Self {
         BlobReader {
             reader,
+            id,
+            hasher: blake3::Hasher::new(),
+            checked: false,
             chunks: chunks.into_iter(),
             cache: ChunkCache::default(),
             current: Rc::new(Vec::new()),
@@ -74,9 +80,22 @@ impl<'a> BlobReader<'a> {
     /// The next whole chunk (id and bytes), for callers that check pieces one by one.
     pub fn next_chunk(&mut self) -> crate::Result<Option<(ChunkId, Rc<Vec<u8>>)>> {
         let Some(next) = self.chunks.next() else {
+            // Each piece was checked against its own hash as it was read; the whole file is
+            // checked against its id here, so pieces swapped, dropped or added are caught
+            // before a reader takes the last byte as the end.
+            if !self.checked {
+                self.checked = true;
+                if *self.hasher.finalize().as_bytes() != *self.id.as_bytes() {
+                    return Err(crate::Error::Tampered(format!(
+                        "stored file {} does not match its hash: its pieces were changed, swapped or cut",
+                        self.id.short()
+                    )));
+                }
+            }
             return Ok(None);
         };
         let bytes = self.reader.chunk_bytes_once(&next, &mut self.cache)?;
+        self.hasher.update(&bytes);
         Ok(Some((next, bytes)))
     }
 }

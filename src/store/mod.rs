@@ -12,6 +12,7 @@ mod blob;
 pub mod codec;
 mod index;
 mod read;
+mod schema_check;
 mod write;
 
 pub use blob::{BlobReader, ChunkCache};
@@ -165,12 +166,28 @@ impl Store {
             });
         }
         Store::configure(&conn)?;
+        // Nothing runs before the store is known to hold only what emend made: a migration
+        // writes, and a planted trigger would run inside it.
+        let foreign = schema_check::foreign_objects(&conn, version < SCHEMA_VERSION)?;
+        if !foreign.is_empty() {
+            return Err(Error::ForeignSchema {
+                path: path.to_path_buf(),
+                objects: foreign,
+            });
+        }
         let mut store = Store {
             conn,
             path: path.to_path_buf(),
         };
         if version < SCHEMA_VERSION {
             store.migrate(version)?;
+            let foreign = schema_check::foreign_objects(&store.conn, false)?;
+            if !foreign.is_empty() {
+                return Err(Error::ForeignSchema {
+                    path: path.to_path_buf(),
+                    objects: foreign,
+                });
+            }
         }
         Ok(store)
     }
@@ -187,6 +204,22 @@ impl Store {
             conn,
             path: path.to_path_buf(),
         })
+    }
+
+    /// Open a store file for an audit: read only, without migrating and without refusing
+    /// schema objects emend did not make, so `verify` can list them with everything else.
+    /// Nothing is written through it, so no trigger in the file can run.
+    pub fn open_for_audit(path: &Path) -> Result<Store> {
+        let store = Store::open_read_only(path)?;
+        let app_id: i64 = store
+            .conn
+            .query_row("PRAGMA application_id", [], |r| r.get(0))
+            .map_err(|_| Error::NotAStore(path.to_path_buf()))?;
+        if app_id != APPLICATION_ID {
+            return Err(Error::NotAStore(path.to_path_buf()));
+        }
+        store.conn.execute_batch("PRAGMA trusted_schema = OFF;")?;
+        Ok(store)
     }
 
     fn configure(conn: &Connection) -> Result<()> {
@@ -247,6 +280,14 @@ impl Store {
             .conn
             .transaction_with_behavior(TransactionBehavior::Immediate)
             .map_err(sql_err_busy)?;
+        // Checked again inside the lock: nobody can plant a trigger between this and the write.
+        let foreign = schema_check::foreign_objects(&tx, false)?;
+        if !foreign.is_empty() {
+            return Err(Error::ForeignSchema {
+                path: self.path.clone(),
+                objects: foreign,
+            });
+        }
         Ok(WriteTx { tx })
     }
 }

@@ -96,6 +96,12 @@ pub struct Reader<'a> {
 }
 
 impl<'a> Reader<'a> {
+    /// Schema objects in the file that emend did not make, or that differ from what it
+    /// makes (see `schema_check`): each named.
+    pub fn foreign_objects(&self) -> Result<Vec<String>> {
+        super::schema_check::foreign_objects(self.conn, false)
+    }
+
     /// The newest commit's sequence and id.
     pub fn head(&self) -> Result<Option<(u64, CommitId)>> {
         Ok(self
@@ -233,15 +239,7 @@ impl<'a> Reader<'a> {
 
     /// Every derived index row, sorted.
     pub fn index_rows(&self) -> Result<IndexRows> {
-        let mut out = IndexRows::default();
-        let mut stmt = self
-            .conn
-            .prepare("SELECT tbl, seq, extract FROM extract_index")?;
-        for row in stmt.query_map([], |r| {
-            Ok((r.get(0)?, r.get::<_, i64>(1)? as u64, blob32(r, 2)?))
-        })? {
-            out.extracts.push(row?);
-        }
+        let mut out = self.index_rows_but_cells()?;
         let mut stmt = self
             .conn
             .prepare("SELECT tbl, row_id, col, seq, fix_idx, old, new FROM cell_edit")?;
@@ -257,6 +255,48 @@ impl<'a> Reader<'a> {
             })
         })? {
             out.cells.push(row?);
+        }
+        out.sort();
+        Ok(out)
+    }
+
+    /// The version hash and row count last recorded for `table` at or before commit `upto`.
+    pub fn recorded_version(
+        &self,
+        table: &str,
+        upto: u64,
+    ) -> Result<Option<(crate::hash::VersionHash, u64)>> {
+        Ok(self
+            .conn
+            .prepare_cached(
+                "SELECT hash, n_rows FROM version_index WHERE tbl = ?1 AND seq <= ?2
+                 ORDER BY seq DESC LIMIT 1",
+            )?
+            .query_row(params![table, sq(upto)], |r| {
+                Ok((blob32(r, 0)?, r.get::<_, i64>(1)? as u64))
+            })
+            .optional()?
+            .map(|(h, n)| (crate::hash::VersionHash::from_bytes(h), n)))
+    }
+
+    /// How many cell-edit index rows there are.
+    pub fn count_cell_edits(&self) -> Result<u64> {
+        Ok(self
+            .conn
+            .query_row("SELECT count(*) FROM cell_edit", [], |r| r.get::<_, i64>(0))?
+            as u64)
+    }
+
+    /// Every derived index row but the cell edits (which can be many), sorted.
+    pub fn index_rows_but_cells(&self) -> Result<IndexRows> {
+        let mut out = IndexRows::default();
+        let mut stmt = self
+            .conn
+            .prepare("SELECT tbl, seq, extract FROM extract_index")?;
+        for row in stmt.query_map([], |r| {
+            Ok((r.get(0)?, r.get::<_, i64>(1)? as u64, blob32(r, 2)?))
+        })? {
+            out.extracts.push(row?);
         }
         let mut stmt = self
             .conn
@@ -560,7 +600,7 @@ impl<'a> Reader<'a> {
         Ok(rows.collect::<rusqlite::Result<_>>()?)
     }
 
-    /// A chunk's uncompressed bytes, appended to `out`. Does not check the hash.
+    /// A chunk's uncompressed bytes, appended to `out`, checked against its hash.
     pub fn read_chunk(&self, id: &ChunkId, out: &mut Vec<u8>) -> Result<()> {
         let bytes = self.chunk_bytes(id, &mut ChunkCache::default())?;
         out.extend_from_slice(&bytes);
@@ -649,6 +689,12 @@ impl<'a> Reader<'a> {
                 raw.len()
             )));
         }
+        if ChunkId(crate::hash::Digest::of(&raw)) != *id {
+            return Err(Error::Tampered(format!(
+                "stored piece {} does not match its hash: the stored bytes were changed",
+                id.short()
+            )));
+        }
         let raw = Rc::new(raw);
         if keep {
             cache.put(*id, raw.clone());
@@ -730,7 +776,7 @@ impl<'a> Reader<'a> {
         if chunks.is_empty() && !self.has_blob(id)? {
             return Err(Error::Corrupt(format!("stored file {id} is missing")));
         }
-        Ok(BlobReader::new(*self, chunks))
+        Ok(BlobReader::new(*self, *id, chunks))
     }
 
     /// Total bytes of compressed chunk data.

@@ -509,6 +509,7 @@ pub fn report_view(
                 .iter()
                 .map(|p| format!("{}: {}", p.object, p.what))
                 .collect(),
+            receipt: None,
         },
         commits,
         cells_changed: crate::model::net_cells(&all_records),

@@ -3,6 +3,7 @@
 //! Export is deterministic: the same version and options give the same bytes every run. It
 //! writes the extract's own delimiter, line ends, byte-order mark and quoting style, in UTF-8.
 
+use crate::table::VersionHashBuilder;
 use crate::error::{Error, Result};
 use crate::hash::BlobId;
 use crate::query::Version;
@@ -109,7 +110,14 @@ pub fn export_version(
     let na = opts.na.as_deref().unwrap_or("");
     let mut n_rows = 0;
     let mut n_left_out = 0;
+    // The version written is hashed as it goes and compared at the end with the hash its
+    // signed commit records: a stored piece or derived row changed outside emend fails the
+    // export (and the caller removes what was written) instead of passing as cleaned data.
+    let mut check = VersionHashBuilder::new(version.header());
+    let mut n_seen = 0u64;
     version.for_each_row(reader, |row| {
+        check.row(row.id, row.excluded, row.cells);
+        n_seen += 1;
         if row.excluded && !opts.with_excluded {
             n_left_out += 1;
             return Ok(ControlFlow::Continue(()));
@@ -135,6 +143,14 @@ pub fn export_version(
         n_rows += 1;
         Ok(ControlFlow::Continue(()))
     })?;
+    if let Some((hash, n)) = version.recorded(reader)?
+        && (version.finish_hash(check) != hash || n != n_seen)
+    {
+        return Err(Error::Tampered(format!(
+            "table '{}' rebuilt as of commit {} does not match the version its signed commit records",
+            version.table, version.seq
+        )));
+    }
     out.flush().map_err(io)?;
     Ok(ExportOutcome {
         n_rows,
@@ -207,7 +223,14 @@ pub fn export_blob_checked(reader: &Reader<'_>, id: &BlobId, out: &mut dyn Write
 /// Copy a stored extract's bytes unchanged. Returns the byte count.
 pub fn export_raw(reader: &Reader<'_>, extract: &BlobId, out: &mut dyn Write) -> Result<u64> {
     let mut blob = reader.open_blob(extract)?;
-    let n = std::io::copy(&mut blob, out).map_err(|e| Error::io("<output>", e))?;
+    // A stored piece that fails its hash comes back as an io error carrying our own error.
+    let n = std::io::copy(&mut blob, out).map_err(|e| match e.get_ref().and_then(|i| i.downcast_ref::<Error>()) {
+        Some(_) => *e
+            .into_inner()
+            .and_then(|i| i.downcast::<Error>().ok())
+            .expect("checked above"),
+        None => Error::io("<output>", e),
+    })?;
     out.flush().map_err(|e| Error::io("<output>", e))?;
     Ok(n)
 }

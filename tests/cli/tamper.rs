@@ -9,7 +9,7 @@ use crate::util::{TestDir, open_db, setup_store};
 use crate::walkthrough::{LAB_SHEET, RIVER_CSV};
 use rusqlite::{Connection, params};
 
-const TRIGGERS: &[&str] = &[
+pub const TRIGGERS: &[&str] = &[
     "chunk_no_update",
     "chunk_no_delete",
     "blob_no_update",
@@ -20,7 +20,7 @@ const TRIGGERS: &[&str] = &[
     "commit_no_delete",
 ];
 
-fn template() -> TestDir {
+pub fn template() -> TestDir {
     let dir = TestDir::new("tamper_template");
     setup_store(&dir);
     dir.write("river.csv", RIVER_CSV);
