@@ -250,8 +250,7 @@ pub fn report(cx: &CliContext, a: ReportArgs) -> Result<i32> {
     let started = std::time::Instant::now();
     let verify =
         emend::query::verify::verify(&reader, &emend::query::verify::Trust::Store, &mut |_| {})?;
-    let mut view =
-        emend::views::audit::report_view(&reader, &a.table, rev, &verify, &cx.now()?)?;
+    let mut view = emend::views::audit::report_view(&reader, &a.table, rev, &verify, &cx.now()?)?;
     if let Some(id) = cx.try_identity()? {
         let name = match &id.email {
             Some(e) => format!("{} <{e}>", id.name),

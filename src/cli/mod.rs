@@ -210,7 +210,11 @@ fn run(cli: Cli) -> Result<i32> {
             | Command::Withdraw(_)
             | Command::Decisions(_)
     );
-    let before = if may_commit { receipt::head_before(cx) } else { None };
+    let before = if may_commit {
+        receipt::head_before(cx)
+    } else {
+        None
+    };
     let code = dispatch(cx, cli)?;
     if may_commit {
         receipt::after_command(cx, before);

@@ -13,7 +13,12 @@ use std::path::{Path, PathBuf};
 #[derive(Args, Debug)]
 pub struct ReceiptArgs {
     /// Write the receipt to this file instead of standard output
-    #[arg(short = 'o', long = "output", value_name = "FILE", conflicts_with = "append")]
+    #[arg(
+        short = 'o',
+        long = "output",
+        value_name = "FILE",
+        conflicts_with = "append"
+    )]
     output: Option<PathBuf>,
     /// Add the receipt to the end of this file (a file of receipts, newest last)
     #[arg(long, value_name = "FILE")]
@@ -37,7 +42,10 @@ pub fn kept_in(cx: &CliContext) -> Result<Option<PathBuf>> {
         return Ok(Some(PathBuf::from(p)));
     }
     match std::fs::read_to_string(setting(cx)?) {
-        Ok(text) => Ok(Some(PathBuf::from(text.trim_end_matches('\n'))).filter(|p| !p.as_os_str().is_empty())),
+        Ok(text) => {
+            Ok(Some(PathBuf::from(text.trim_end_matches('\n')))
+                .filter(|p| !p.as_os_str().is_empty()))
+        }
         Err(e) if e.kind() == std::io::ErrorKind::NotFound => Ok(None),
         Err(e) => Err(e).context("reading the name of your receipt file"),
     }
@@ -76,8 +84,7 @@ pub fn receipt_cmd(cx: &CliContext, a: ReceiptArgs) -> Result<i32> {
             writeln!(out::stdout(), "receipts are no longer added automatically")?;
             return Ok(0);
         }
-        let path = std::path::absolute(target)
-            .with_context(|| format!("naming {target}"))?;
+        let path = std::path::absolute(target).with_context(|| format!("naming {target}"))?;
         std::fs::create_dir_all(cx.home()?)?;
         std::fs::write(&file, format!("{}\n", path.display()))
             .with_context(|| format!("writing {}", file.display()))?;
@@ -97,7 +104,8 @@ pub fn receipt_cmd(cx: &CliContext, a: ReceiptArgs) -> Result<i32> {
     let r = make(cx, &store)?;
     match (&a.output, &a.append) {
         (Some(path), _) => {
-            std::fs::write(path, r.text()).with_context(|| format!("writing {}", path.display()))?;
+            std::fs::write(path, r.text())
+                .with_context(|| format!("writing {}", path.display()))?;
             eprintln!(
                 "wrote a receipt of commit {} ({}) to {}; keep it outside the store, and check with 'emend verify --receipt {}'",
                 r.seq,

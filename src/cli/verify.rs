@@ -161,7 +161,9 @@ pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
     // verify opens it for reading only, runs nothing in it, and lists them with the rest.
     let store = match cx.store_unchecked() {
         Err(e) => match e.downcast_ref::<emend::Error>() {
-            Some(emend::Error::ForeignSchema { path, .. }) => emend::store::Store::open_for_audit(path)?,
+            Some(emend::Error::ForeignSchema { path, .. }) => {
+                emend::store::Store::open_for_audit(path)?
+            }
             _ => return Err(e),
         },
         Ok(s) => s,
@@ -287,7 +289,8 @@ pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
                         .iter()
                         .map(|s| match s.by_commit {
                             None => format!("{} ({roots})", out::clean(&s.name)),
-                            Some(c) => format!("{}, vouched for in commit {c}", out::clean(&s.name)),
+                            Some(c) =>
+                                format!("{}, vouched for in commit {c}", out::clean(&s.name)),
                         })
                         .collect::<Vec<_>>()
                         .join(" → ")

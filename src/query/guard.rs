@@ -62,7 +62,10 @@ pub fn check(reader: &Reader<'_>) -> Result<Checked> {
         let body = CommitBody::decode(&stored.body)
             .map_err(|e| Error::Tampered(format!("commit {seq}'s body does not decode ({e})")))?;
         if body.seq != seq {
-            return tampered(format!("commit {seq}'s body says it is commit {}", body.seq));
+            return tampered(format!(
+                "commit {seq}'s body says it is commit {}",
+                body.seq
+            ));
         }
         if body.parent != prev {
             return tampered(format!(
@@ -108,7 +111,10 @@ pub fn check(reader: &Reader<'_>) -> Result<Checked> {
     let actual = reader.index_rows_but_cells()?;
     for (what, same) in [
         ("extract", expected.extracts == actual.extracts),
-        ("exclusion, distrust, kept-value and note", expected.marks == actual.marks),
+        (
+            "exclusion, distrust, kept-value and note",
+            expected.marks == actual.marks,
+        ),
         ("table version", expected.versions == actual.versions),
         ("tag", expected.tags == actual.tags),
     ] {

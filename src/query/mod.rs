@@ -12,8 +12,8 @@
 pub mod commits;
 pub mod diff;
 pub mod guard;
-pub mod receipt;
 pub mod in_force;
+pub mod receipt;
 pub mod rev;
 pub mod verify;
 pub mod version;

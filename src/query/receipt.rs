@@ -62,7 +62,11 @@ impl Receipt {
             self.seq,
             self.id.to_hex(),
             one_line(&self.commit_time),
-            self.tables.iter().map(|t| one_line(t)).collect::<Vec<_>>().join(", "),
+            self.tables
+                .iter()
+                .map(|t| one_line(t))
+                .collect::<Vec<_>>()
+                .join(", "),
             one_line(&self.made_at),
             one_line(&self.signer_name),
             data_encoding::HEXLOWER.encode(&self.key),
@@ -86,9 +90,9 @@ impl Receipt {
 
 /// Sign a receipt of the store's head. Fails on a store with no commits.
 pub fn make(reader: &Reader<'_>, signer: &Signer, signer_name: &str, now: &str) -> Result<Receipt> {
-    let (seq, id) = reader
-        .head()?
-        .ok_or_else(|| Error::Invalid("the store holds no commits yet: there is nothing to receipt".into()))?;
+    let (seq, id) = reader.head()?.ok_or_else(|| {
+        Error::Invalid("the store holds no commits yet: there is nothing to receipt".into())
+    })?;
     let first = reader
         .try_commit(1)?
         .ok_or_else(|| Error::Corrupt("commit 1 is missing".into()))?;
@@ -250,7 +254,11 @@ mod tests {
     fn a_receipt_reads_back_from_its_text_amid_other_lines() {
         let signer = Signer::from_seed(&[7; 32]);
         let r = sample(&signer);
-        let mail = format!("Hello,\nhere is today's receipt:\n\n{}\n-- \nsent\n{}", r.text(), r.text());
+        let mail = format!(
+            "Hello,\nhere is today's receipt:\n\n{}\n-- \nsent\n{}",
+            r.text(),
+            r.text()
+        );
         let parsed = parse_all(&mail);
         assert_eq!(parsed.len(), 2);
         assert_eq!(parsed[0].0, 4, "the line the first receipt starts on");

@@ -130,10 +130,8 @@ pub fn verify(
     let mut signed: Vec<(u64, [u8; 32], String)> = Vec::new();
     // Who vouched for each key not in the roots: key -> (trust commit, voucher).
     let mut vouched_by: HashMap<[u8; 32], (u64, [u8; 32])> = HashMap::new();
-    let mut names: HashMap<[u8; 32], String> = signers
-        .iter()
-        .map(|s| (s.key, s.name.clone()))
-        .collect();
+    let mut names: HashMap<[u8; 32], String> =
+        signers.iter().map(|s| (s.key, s.name.clone())).collect();
 
     progress("schema");
     for object in reader.foreign_objects()? {
@@ -228,7 +226,9 @@ pub fn verify(
         // by a trusted signer ends a key's trust from the commit it names.
         let vouched = signing::verify(&body.author.key, stored.id.as_bytes(), &stored.signature)
             && trusts(&trusted, &body.author.key, stored.seq);
-        names.entry(body.author.key).or_insert_with(|| body.author.name.clone());
+        names
+            .entry(body.author.key)
+            .or_insert_with(|| body.author.name.clone());
         match &body.change {
             Change::Trust(t) if vouched => {
                 if !trusted.contains_key(&t.key) {

@@ -117,7 +117,8 @@ fn view_with(s: &dyn Fn(&str) -> String) -> ReportView {
             intact: false,
             checked: s("verify_checked"),
             problems: vec![s("verify_problem")],
-         receipt: None },
+            receipt: None,
+        },
         // The two fixes below change different cells: 1234 + 1.
         cells_changed: 1235,
         kept: vec![],

@@ -99,7 +99,9 @@ pub(crate) fn foreign_objects(conn: &Connection, only_code: bool) -> Result<Vec<
         }
         match expected.get(&(kind.clone(), name.clone())) {
             None => out.push(format!("{kind} {name} (emend never makes it)")),
-            Some(want) if want != what => out.push(format!("{kind} {name} (it differs from the one emend makes)")),
+            Some(want) if want != what => out.push(format!(
+                "{kind} {name} (it differs from the one emend makes)"
+            )),
             Some(_) => {}
         }
     }
@@ -138,9 +140,18 @@ mod tests {
         )
         .unwrap();
         let found = foreign_objects(&conn, false).unwrap();
-        assert!(found.contains(&"trigger rewrite (emend never makes it)".to_string()), "{found:?}");
-        assert!(found.contains(&"view peek (emend never makes it)".to_string()), "{found:?}");
-        assert!(found.contains(&"index extra (emend never makes it)".to_string()), "{found:?}");
+        assert!(
+            found.contains(&"trigger rewrite (emend never makes it)".to_string()),
+            "{found:?}"
+        );
+        assert!(
+            found.contains(&"view peek (emend never makes it)".to_string()),
+            "{found:?}"
+        );
+        assert!(
+            found.contains(&"index extra (emend never makes it)".to_string()),
+            "{found:?}"
+        );
         assert!(
             found.contains(&"table store_meta (it differs from the one emend makes)".to_string()),
             "{found:?}"

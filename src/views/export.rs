@@ -3,11 +3,11 @@
 //! Export is deterministic: the same version and options give the same bytes every run. It
 //! writes the extract's own delimiter, line ends, byte-order mark and quoting style, in UTF-8.
 
-use crate::table::VersionHashBuilder;
 use crate::error::{Error, Result};
 use crate::hash::BlobId;
 use crate::query::Version;
 use crate::store::Reader;
+use crate::table::VersionHashBuilder;
 use crate::table::csv::write_record;
 use std::io::Write;
 use std::ops::ControlFlow;
@@ -224,12 +224,14 @@ pub fn export_blob_checked(reader: &Reader<'_>, id: &BlobId, out: &mut dyn Write
 pub fn export_raw(reader: &Reader<'_>, extract: &BlobId, out: &mut dyn Write) -> Result<u64> {
     let mut blob = reader.open_blob(extract)?;
     // A stored piece that fails its hash comes back as an io error carrying our own error.
-    let n = std::io::copy(&mut blob, out).map_err(|e| match e.get_ref().and_then(|i| i.downcast_ref::<Error>()) {
-        Some(_) => *e
-            .into_inner()
-            .and_then(|i| i.downcast::<Error>().ok())
-            .expect("checked above"),
-        None => Error::io("<output>", e),
+    let n = std::io::copy(&mut blob, out).map_err(|e| {
+        match e.get_ref().and_then(|i| i.downcast_ref::<Error>()) {
+            Some(_) => *e
+                .into_inner()
+                .and_then(|i| i.downcast::<Error>().ok())
+                .expect("checked above"),
+            None => Error::io("<output>", e),
+        }
     })?;
     out.flush().map_err(|e| Error::io("<output>", e))?;
     Ok(n)
