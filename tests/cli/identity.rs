@@ -254,6 +254,12 @@ fn a_commit_re_signed_by_a_key_added_to_the_store_is_caught_by_an_auditor_key_fi
             rusqlite::params![&insider_pub[..], crate::util::NOW],
         )
         .unwrap();
+        // A careful insider puts the guard back exactly as emend makes it.
+        c.execute_batch(
+            "CREATE TRIGGER commit_no_update BEFORE UPDATE ON commit_log
+BEGIN SELECT RAISE(ABORT, 'commits are immutable'); END;",
+        )
+        .unwrap();
     }
     // The store's list now trusts the insider: verify (store trust) passes.
     dir.cmd(["verify"]).ok();
