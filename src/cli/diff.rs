@@ -204,7 +204,7 @@ fn csv_line(o: &mut dyn Write, fields: &[String]) -> Result<()> {
 }
 
 pub fn diff_cmd(cx: &CliContext, a: DiffArgs) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let reader = store.read();
     let names = reader.table_names()?;
     let latest = "latest".to_string();

@@ -217,7 +217,7 @@ pub(super) fn warn_formulas(n: u64, defused: bool) -> Result<()> {
 }
 
 pub fn export(cx: &CliContext, a: ExportArgs) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let reader = store.read();
     let rev = query::resolve(&reader, &a.at)?;
     let v = query::version_at(&reader, &a.table, rev)?;
@@ -356,7 +356,7 @@ pub struct ReportArgs {
 }
 
 pub fn report(cx: &CliContext, a: ReportArgs) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let reader = store.read();
     let rev = query::resolve(&reader, &a.at)?;
     query::version_at(&reader, &a.table, rev)?;
@@ -404,7 +404,7 @@ pub struct EvidenceArgs {
 
 /// Writes a stored evidence file back out, checked against its hash.
 pub fn evidence(cx: &CliContext, a: EvidenceArgs) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let reader = store.read();
     let e = emend::views::export::find_evidence(&reader, &a.hash)?;
     match &a.output {

@@ -51,7 +51,7 @@ fn read_keys(path: &PathBuf) -> Result<Vec<[u8; 32]>> {
 }
 
 pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let trust = match &a.trust {
         Some(p) => Trust::Keys(read_keys(p)?),
         None => Trust::Store,

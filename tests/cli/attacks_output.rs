@@ -280,3 +280,146 @@ fn export_to_a_fifo_is_written_in_place_for_its_reader() {
             .is_fifo()
     );
 }
+
+#[test]
+fn a_store_named_by_emend_store_is_used_from_any_folder() {
+    let dir = small_store("emend_store");
+    // Another folder, outside the project: walking up from it finds no store.
+    let other = TestDir::new("emend_store_elsewhere");
+    let store = dir.store_file();
+    let run = |args: &[&str], named: Option<&std::path::Path>| {
+        let mut c = other.command(args);
+        c.env("EMEND_HOME", dir.path(crate::util::HOME));
+        if let Some(p) = named {
+            c.env("EMEND_STORE", p);
+        }
+        other.run(c)
+    };
+    assert_eq!(
+        run(&["export", "t"], Some(&store)).ok().stdout(),
+        "id,v\n1,a\n2,b\n"
+    );
+    // The project folder works as well as the file, and a write goes to that store.
+    run(
+        &["set", "t", "1", "v", "z", "--why", "typo"],
+        Some(dir.root()),
+    )
+    .ok();
+    run(&["status"], Some(dir.root())).ok().says(&["typo"]);
+    dir.cmd(["status"]).ok().says(&["typo"]);
+    // Without it, that folder has no store.
+    run(&["tables"], None).fails(&["no emend store"]);
+    // A name that holds no store says so.
+    run(
+        &["tables"],
+        Some(std::path::Path::new("nothing-here.sqlite")),
+    )
+    .fails(&["EMEND_STORE=nothing-here.sqlite names no store"]);
+}
+
+/// Whether this process ignores file permissions (root does).
+#[cfg(unix)]
+fn ignores_permissions(dir: &TestDir) -> bool {
+    use std::os::unix::fs::PermissionsExt;
+    let p = dir.write("probe", "x");
+    std::fs::set_permissions(&p, std::fs::Permissions::from_mode(0o444)).unwrap();
+    let writable = std::fs::OpenOptions::new().write(true).open(&p).is_ok();
+    std::fs::remove_file(&p).unwrap();
+    writable
+}
+
+/// `emend ARGS` as the user `nobody` (uid 65534) through util-linux `setpriv`, for tests run as
+/// root, which ignores permissions; `None` when setpriv is not there.
+#[cfg(unix)]
+fn as_nobody(
+    dir: &TestDir,
+    args: &[&str],
+    store: Option<&std::path::Path>,
+) -> Option<crate::util::Output> {
+    let setpriv = ["/usr/bin/setpriv", "/bin/setpriv"]
+        .into_iter()
+        .find(|p| std::path::Path::new(p).exists())?;
+    let mut c = std::process::Command::new(setpriv);
+    c.args([
+        "--reuid=65534",
+        "--regid=65534",
+        "--clear-groups",
+        crate::util::BIN,
+    ])
+    .args(args)
+    .current_dir(dir.root())
+    .env_clear()
+    .env("EMEND_HOME", dir.path("nobody-home"))
+    .env("EMEND_NOW", crate::util::NOW)
+    .env("NO_COLOR", "1")
+    .stdin(std::process::Stdio::null());
+    if let Some(s) = store {
+        c.env("EMEND_STORE", s);
+    }
+    Some(dir.run(c))
+}
+
+#[cfg(unix)]
+#[test]
+fn a_read_only_store_still_verifies_shows_and_exports_and_refuses_writes_clearly() {
+    use std::os::unix::fs::PermissionsExt;
+    let dir = small_store("read_only");
+    dir.cmd(["set", "t", "1", "v", "z", "--why", "typo"]).ok();
+    dir.cmd(["commit", "-m", "fix"]).ok();
+    // A checkpointed store without WAL or SHM files, as a copy would be (the WAL is empty
+    // once every connection has closed).
+    for f in [".emend/store.sqlite-wal", ".emend/store.sqlite-shm"] {
+        if std::fs::metadata(dir.path(f)).is_ok_and(|m| m.len() == 0 || f.ends_with("shm")) {
+            std::fs::remove_file(dir.path(f)).unwrap();
+        }
+    }
+    let set = |p: &str, mode: u32| {
+        std::fs::set_permissions(dir.path(p), std::fs::Permissions::from_mode(mode)).unwrap()
+    };
+    let store = dir.store_file();
+    let reader = |args: &[&str]| -> Option<crate::util::Output> {
+        if ignores_permissions(&dir) {
+            // Root: the store stays root's, and `nobody` reads it, named by EMEND_STORE.
+            as_nobody(&dir, args, Some(&store))
+        } else {
+            Some(dir.cmd(args))
+        }
+    };
+    if ignores_permissions(&dir) {
+        // nobody must reach the folder; the store itself stays root's (0644 in a 0755 folder).
+        set(".", 0o755);
+        let Some(refused) = as_nobody(&dir, &["verify"], None) else {
+            eprintln!("note: skipped the read-only store test: running as root without setpriv");
+            return;
+        };
+        // Found by walking up, a store owned by another user is refused, naming EMEND_STORE.
+        refused.fails(&["belongs to another user", "EMEND_STORE="]);
+    } else {
+        set(".emend/store.sqlite", 0o444);
+        set(".emend", 0o555);
+    }
+    let verify = reader(&["verify"]).unwrap().ok();
+    assert!(verify.stdout().contains("intact"), "{}", verify.stdout());
+    assert!(verify.stderr().contains("immutable"), "{}", verify.stderr());
+    reader(&["show", "t"]).unwrap().ok().says(&["z"]);
+    assert_eq!(
+        reader(&["export", "t"]).unwrap().ok().stdout(),
+        "id,v\n1,z\n2,b\n"
+    );
+    reader(&["log"]).unwrap().ok().says(&["typo"]);
+    reader(&["why", "t", "1", "v"])
+        .unwrap()
+        .ok()
+        .says(&["typo"]);
+    reader(&["diff", "t", "raw", "latest"]).unwrap().ok();
+    reader(&["status"]).unwrap().ok();
+    reader(&["set", "t", "2", "v", "y", "--why", "typo"])
+        .unwrap()
+        .fails(&["is read-only to you", "still work"]);
+    // Nothing was written beside the store.
+    assert!(!dir.path(".emend/store.sqlite-shm").exists());
+    if !ignores_permissions(&dir) {
+        set(".emend", 0o755);
+        set(".emend/store.sqlite", 0o644);
+    }
+}
