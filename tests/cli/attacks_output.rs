@@ -423,3 +423,53 @@ fn a_read_only_store_still_verifies_shows_and_exports_and_refuses_writes_clearly
         set(".emend/store.sqlite", 0o644);
     }
 }
+
+#[cfg(unix)]
+#[test]
+fn on_a_real_terminal_forged_text_is_escaped_and_our_colours_remain() {
+    // util-linux `script` runs the commands on a pseudo-terminal, so stdout is a terminal.
+    let Some(script) = ["/usr/bin/script", "/bin/script"]
+        .into_iter()
+        .find(|p| std::path::Path::new(p).exists())
+    else {
+        eprintln!("note: skipped the terminal test: util-linux `script` is not installed");
+        return;
+    };
+    let dir = forged_store("terminal");
+    let bin = format!("'{}'", crate::util::BIN.replace('\'', "'\\''"));
+    let mut c = std::process::Command::new(script);
+    c.args([
+        "-qec",
+        &format!("{bin} log; {bin} export sites; {bin} why sites A2 ph"),
+        "/dev/null",
+    ])
+    .current_dir(dir.root())
+    .env_clear()
+    .env("EMEND_HOME", dir.path(crate::util::HOME))
+    .env("EMEND_NOW", crate::util::NOW)
+    .env("TERM", "xterm")
+    .stdin(std::process::Stdio::null());
+    if let Some(path) = std::env::var_os("PATH") {
+        c.env("PATH", path);
+    }
+    let text = dir.run(c).ok().stdout();
+    // ECMA-48: our bold is SGR 1 (ESC [1m); the forged erase-line is CSI 2K.
+    assert!(
+        text.contains("\u{1b}[1m"),
+        "colours stay on a terminal: {text:?}"
+    );
+    assert!(!text.contains("\u{1b}[2K"), "{text:?}");
+    assert!(!text.contains("\rintact"), "{text:?}");
+    assert!(
+        text.contains("Mallory\\u{1b}[2K\\u{d}intact"),
+        "log: {text:?}"
+    );
+    assert!(
+        text.contains("\"Mill\\u{1b}[2K\\u{d}intact\""),
+        "export: {text:?}"
+    );
+    assert!(
+        text.contains("meter\\u{1b}[2K\\u{d}intact"),
+        "why: {text:?}"
+    );
+}
