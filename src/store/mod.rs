@@ -180,23 +180,27 @@ mod access {
         })
     }
 
+    /// The store error an operating-system refusal to write means: EROFS is read-only media,
+    /// EACCES/EPERM a read-only store, ENOSPC/EDQUOT a full disk; anything else is not ours
+    /// to name.
+    pub(super) fn classify(path: &Path, e: &std::io::Error) -> Option<Error> {
+        use std::io::ErrorKind as K;
+        match e.kind() {
+            K::ReadOnlyFilesystem => Some(Error::ReadOnlyMedia(path.to_path_buf())),
+            K::PermissionDenied => Some(Error::ReadOnlyStore {
+                path: Some(path.to_path_buf()),
+            }),
+            K::StorageFull | K::QuotaExceeded => Some(Error::DiskFull {
+                path: Some(path.to_path_buf()),
+            }),
+            _ => None,
+        }
+    }
+
     /// Try to write the store file (opened without truncating: nothing changes) and its folder
     /// (an unnamed temporary file, gone when closed); name what refuses.
     fn probe(path: &Path) -> Option<Error> {
-        let classify = |e: std::io::Error| match e.kind() {
-            std::io::ErrorKind::ReadOnlyFilesystem => {
-                Some(Error::ReadOnlyMedia(path.to_path_buf()))
-            }
-            std::io::ErrorKind::PermissionDenied => Some(Error::ReadOnlyStore {
-                path: Some(path.to_path_buf()),
-            }),
-            std::io::ErrorKind::StorageFull | std::io::ErrorKind::QuotaExceeded => {
-                Some(Error::DiskFull {
-                    path: Some(path.to_path_buf()),
-                })
-            }
-            _ => None,
-        };
+        let classify = |e: std::io::Error| classify(path, &e);
         if let Err(e) = std::fs::OpenOptions::new().write(true).open(path) {
             return classify(e);
         }
@@ -678,6 +682,37 @@ mod tests {
             Store::open_reading(&foreign),
             Err(Error::NotAStore(_))
         ));
+    }
+
+    #[test]
+    fn refusals_to_write_name_read_only_media_a_read_only_store_and_a_full_disk() {
+        // errno values of Linux (errno(3), asm-generic/errno-base.h; from memory): EROFS 30,
+        // EACCES 13, ENOSPC 28; the standard library maps them to these kinds.
+        let p = Path::new("/media/usb/.emend/store.sqlite");
+        let os = std::io::Error::from_raw_os_error;
+        let media = access::classify(p, &os(30)).unwrap();
+        assert!(matches!(media, Error::ReadOnlyMedia(_)), "{media}");
+        assert!(media.to_string().contains("read-only media"), "{media}");
+        assert!(media.hint().unwrap().contains("still work"));
+        let ro = access::classify(p, &os(13)).unwrap();
+        assert!(matches!(ro, Error::ReadOnlyStore { .. }), "{ro}");
+        assert!(ro.to_string().contains("is read-only to you"), "{ro}");
+        let full = access::classify(p, &os(28)).unwrap();
+        assert!(matches!(full, Error::DiskFull { .. }), "{full}");
+        assert!(
+            access::classify(p, &os(2)).is_none(),
+            "ENOENT is not ours to name"
+        );
+        // SQLite's own codes map the same way wherever they surface
+        // (sqlite.org/rescode.html: SQLITE_READONLY 8, SQLITE_FULL 13).
+        let sqlite = |code: i32| {
+            Error::from(rusqlite::Error::SqliteFailure(
+                rusqlite::ffi::Error::new(code),
+                None,
+            ))
+        };
+        assert!(matches!(sqlite(8), Error::ReadOnlyStore { path: None }));
+        assert!(matches!(sqlite(13), Error::DiskFull { path: None }));
     }
 
     #[test]
