@@ -107,6 +107,34 @@ pub enum Error {
     /// The file is not an emend store.
     #[error("{0} is not an emend store")]
     NotAStore(PathBuf),
+    /// A store found by walking up whose file or folder belongs to another user (issue 16):
+    /// whoever owns it decides what it says, so it is not used without being named.
+    #[error(
+        "the store at {path} belongs to another user (uid {owner}; you are uid {me}), so it was not used"
+    )]
+    ForeignStore {
+        /// The file or folder owned by someone else.
+        path: PathBuf,
+        /// Its owner's uid.
+        owner: u32,
+        /// The current user's uid.
+        me: u32,
+    },
+    /// No space is left to write the store (SQLITE_FULL, ENOSPC).
+    #[error("no space left to write the store{}: the disk (or a size limit) is full", at(.path))]
+    DiskFull {
+        /// The store file, when known.
+        path: Option<PathBuf>,
+    },
+    /// The store's file or folder cannot be written by this user (SQLITE_READONLY, EACCES).
+    #[error("the store{} is read-only to you (its file or folder permissions allow reading only)", at(.path))]
+    ReadOnlyStore {
+        /// The store file, when known.
+        path: Option<PathBuf>,
+    },
+    /// The store sits on media mounted read-only (EROFS).
+    #[error("the store at {0} is on read-only media (a read-only file system)")]
+    ReadOnlyMedia(PathBuf),
     /// The store was written by a newer build.
     #[error("store at {path} uses schema v{found}; this build reads up to v{supported}")]
     SchemaTooNew {
@@ -180,11 +208,32 @@ pub enum Error {
     Key(String),
     /// A SQLite failure that the store layer did not map to a domain error.
     #[error("database error: {0}")]
-    Sqlite(#[from] rusqlite::Error),
+    Sqlite(rusqlite::Error),
     /// A commit body could not be encoded or decoded.
     #[error("encoding error: {0}")]
     Encoding(#[from] postcard::Error),
 }
+
+/// ` at PATH` when the path is known.
+fn at(path: &Option<PathBuf>) -> String {
+    path.as_ref()
+        .map(|p| format!(" at {}", p.display()))
+        .unwrap_or_default()
+}
+
+impl From<rusqlite::Error> for Error {
+    /// A full disk and a read-only store get their own variants wherever SQLite reports them.
+    fn from(e: rusqlite::Error) -> Self {
+        match e.sqlite_error_code() {
+            Some(rusqlite::ErrorCode::DiskFull) => Error::DiskFull { path: None },
+            Some(rusqlite::ErrorCode::ReadOnly) => Error::ReadOnlyStore { path: None },
+            _ => Error::Sqlite(e),
+        }
+    }
+}
+
+/// The advice for commands that only read, shared by the read-only variants.
+const READING_STILL_WORKS: &str = "commands that only read (verify, show, export, log, why, diff, status, check, profile, tags) still work";
 
 impl Error {
     /// What the user can do next, when the library knows.
@@ -196,6 +245,17 @@ impl Error {
                 "this file was not made by emend; it was left untouched".into()
             }
             Error::SchemaTooNew { .. } => "upgrade emend to open this store".into(),
+            Error::ForeignStore { path, .. } => format!(
+                "if you trust its owner, name the store explicitly: EMEND_STORE={} emend ...; else run emend in a folder of your own ('emend init')",
+                path.display()
+            ),
+            Error::DiskFull { .. } => "nothing was changed (the write was rolled back); free space on the disk that holds the store and run the command again".into(),
+            Error::ReadOnlyStore { .. } => format!(
+                "{READING_STILL_WORKS}; to change the store, ask its owner for write permission or work on a copy"
+            ),
+            Error::ReadOnlyMedia(_) => format!(
+                "{READING_STILL_WORKS}; to change the store, copy its project folder to writable media"
+            ),
             Error::UnknownTable(_) => "'emend tables' lists the tables".into(),
             Error::UnknownColumn { table, .. } => {
                 format!("'emend show {table} --rows 1-5' shows the columns")

@@ -67,7 +67,7 @@ pub fn adopt(cx: &CliContext, a: RulesArgs) -> Result<i32> {
 }
 
 pub fn check(cx: &CliContext, a: CheckArgs) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let reader = store.read();
     let rev = query::resolve(&reader, &a.at)?;
     let version = query::version_at(&reader, &a.table, rev)?;

@@ -109,7 +109,7 @@ fn conflict_lines(c: &emend::model::Conflict) -> Vec<String> {
 }
 
 pub fn status(cx: &CliContext, json: bool) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let reader = store.read();
     let pending = reader.pending()?;
     let conflicts = reader.conflicts()?;

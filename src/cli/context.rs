@@ -1,11 +1,12 @@
 //! What one run of `emend` works with, read once from the environment by [`CliContext::from_env`]
 //! and passed to every command: the folder it runs in, the clock (`EMEND_NOW` or the system
-//! time), and where signing identities live (`EMEND_HOME` or the config folder). Commands ask
-//! the context; none of them reads the environment or the clock on its own.
+//! time), where signing identities live (`EMEND_HOME` or the config folder), and the store
+//! named explicitly (`EMEND_STORE`), if any. Commands ask the context; none of them reads the
+//! environment or the clock on its own.
 
 use super::id::{self, Identity};
 use anyhow::{Result, anyhow};
-use emend::store::Store;
+use emend::store::{ReadMode, STORE_FILE, Store};
 use std::path::{Path, PathBuf};
 
 /// The folder, clock and identity home of one run.
@@ -14,16 +15,43 @@ pub struct CliContext {
     cwd: PathBuf,
     fixed_now: Option<String>,
     home: Option<PathBuf>,
+    store: Option<PathBuf>,
 }
 
 impl CliContext {
-    /// Reads the current folder, `EMEND_NOW` and `EMEND_HOME`.
+    /// Reads the current folder, `EMEND_NOW`, `EMEND_HOME` and `EMEND_STORE`.
     pub fn from_env() -> Result<CliContext> {
         Ok(CliContext {
             cwd: std::env::current_dir()?,
             fixed_now: std::env::var("EMEND_NOW").ok(),
             home: std::env::var_os("EMEND_HOME").map(PathBuf::from),
+            store: std::env::var_os("EMEND_STORE")
+                .filter(|s| !s.is_empty())
+                .map(PathBuf::from),
         })
+    }
+
+    /// The store named by `EMEND_STORE`: its file, or a folder holding `store.sqlite` or
+    /// `.emend/store.sqlite`; made absolute, so the project folder is known.
+    fn named_store(&self) -> Result<Option<PathBuf>> {
+        let Some(named) = &self.store else {
+            return Ok(None);
+        };
+        let path = self.cwd.join(named);
+        let file = if path.is_dir() {
+            [path.join(STORE_FILE), Store::file_in(&path)]
+                .into_iter()
+                .find(|p| p.is_file())
+        } else {
+            path.is_file().then(|| path.clone())
+        };
+        let file = file.ok_or_else(|| {
+            anyhow!(
+                "EMEND_STORE={} names no store (give the store file, .emend/store.sqlite, or its project folder)",
+                named.display()
+            )
+        })?;
+        Ok(Some(file.canonicalize()?))
     }
 
     /// The folder the command runs in.
@@ -31,8 +59,9 @@ impl CliContext {
         &self.cwd
     }
 
-    /// Open the store for the current folder (found by walking up), after checking its chain
-    /// and derived rows against the signed commits (`query::guard`): no command shows or
+    /// Open the store for writing: the one `EMEND_STORE` names, else the one found by walking
+    /// up from the current folder (refused when another user owns it); after checking its
+    /// chain and derived rows against the signed commits (`query::guard`), so no command
     /// builds on what the store holds unless the signed history says it.
     pub fn store(&self) -> Result<Store> {
         let store = self.store_unchecked()?;
@@ -40,10 +69,39 @@ impl CliContext {
         Ok(store)
     }
 
-    /// Open the store without the history check: for `verify`, which checks everything and
-    /// lists what it finds.
+    /// Open the store for writing without the history check.
     pub fn store_unchecked(&self) -> Result<Store> {
-        Ok(Store::discover(&self.cwd)?)
+        match self.named_store()? {
+            Some(path) => Ok(Store::open(&path)?),
+            None => Ok(Store::discover(&self.cwd)?),
+        }
+    }
+
+    /// Open the store for a command that only reads: as [`CliContext::store`], read-only, so
+    /// a store the user can read but not write still works, and checked the same way.
+    pub fn store_read(&self) -> Result<Store> {
+        let store = self.store_read_unchecked()?;
+        emend::query::guard::check(&store.read())?;
+        Ok(store)
+    }
+
+    /// Open the store read-only without the history check: for `verify`, which checks
+    /// everything and lists what it finds. When reading needs SQLite's immutable mode (a
+    /// read-only folder), say so on standard error.
+    pub fn store_read_unchecked(&self) -> Result<Store> {
+        let (store, mode) = match self.named_store()? {
+            Some(path) => Store::open_reading(&path)?,
+            None => Store::discover_read_only(&self.cwd)?,
+        };
+        if mode == ReadMode::Immutable {
+            use std::io::Write;
+            let _ = writeln!(
+                super::out::stderr(),
+                "note: {} is in a folder you cannot write; reading it as an immutable file (a writer elsewhere would not be seen)",
+                store.path().display()
+            );
+        }
+        Ok(store)
     }
 
     /// The time to record: `EMEND_NOW` when set (for reproducible runs), else the clock, in UTC.

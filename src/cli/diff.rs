@@ -18,6 +18,11 @@ pub struct DiffArgs {
     /// Comma-separated values, one line per change, for a spreadsheet
     #[arg(long, conflicts_with_all = ["json", "by_column"])]
     csv: bool,
+    /// With --csv: put an apostrophe before each cell a spreadsheet would run as a formula
+    /// (starting with = + - @, tab or carriage return, and not a number). The output is then
+    /// no longer the exact values
+    #[arg(long, requires = "csv")]
+    spreadsheet_safe: bool,
     /// How many cells changed in each column, instead of every cell
     #[arg(long, conflicts_with = "json")]
     by_column: bool,
@@ -199,7 +204,7 @@ fn csv_line(o: &mut dyn Write, fields: &[String]) -> Result<()> {
 }
 
 pub fn diff_cmd(cx: &CliContext, a: DiffArgs) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let reader = store.read();
     let names = reader.table_names()?;
     let latest = "latest".to_string();
@@ -230,10 +235,29 @@ pub fn diff_cmd(cx: &CliContext, a: DiffArgs) -> Result<i32> {
         )?;
         return Ok(0);
     }
-    let mut o = out::stdout();
     if a.csv {
-        csv_line(
-            &mut o,
+        // Data, not text for people: exact bytes to a pipe or file (the styled stream would
+        // strip escape sequences from the values), escaped only on a terminal.
+        let mut o = out::data_stdout();
+        let safe = a.spreadsheet_safe;
+        let mut n_formulas = 0u64;
+        let mut line = |o: &mut dyn Write, fields: &[String]| -> Result<()> {
+            let fields: Vec<String> = fields
+                .iter()
+                .map(|f| {
+                    if emend::values::looks_like_formula(f) {
+                        n_formulas += 1;
+                        if safe {
+                            return emend::values::defuse_formula(f);
+                        }
+                    }
+                    f.clone()
+                })
+                .collect();
+            csv_line(o, &fields)
+        };
+        line(
+            &mut *o,
             &[
                 "table",
                 "change",
@@ -250,12 +274,16 @@ pub fn diff_cmd(cx: &CliContext, a: DiffArgs) -> Result<i32> {
             .map(String::from),
         )?;
         for d in &diffs {
-            for line in diff_csv_lines(d) {
-                csv_line(&mut o, &line)?;
+            for l in diff_csv_lines(d) {
+                line(&mut *o, &l)?;
             }
         }
+        o.flush()?;
+        drop(o);
+        super::export::warn_formulas(n_formulas, safe)?;
         return Ok(0);
     }
+    let mut o = out::stdout();
     let label = |r: &Rev, s: u64| {
         if r.raw {
             format!("raw (commit {s})")

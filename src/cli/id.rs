@@ -203,7 +203,7 @@ pub fn show(cx: &CliContext, json: bool, key_only: bool) -> Result<i32> {
         writeln!(out::stdout(), "{}", data_encoding::HEXLOWER.encode(&key))?;
         return Ok(0);
     }
-    let trusted = match cx.store() {
+    let trusted = match cx.store_read() {
         Ok(store) => {
             let reader = store.read();
             let next = reader.head()?.map_or(1, |(seq, _)| seq + 1);

@@ -44,7 +44,10 @@ pub const EXIT_UNTRUSTED: i32 = 3;
 of cell-level edits with a reason, and rebuilds, exports and verifies any cleaned version.\n\n\
 Start with 'emend demo' to see a worked example, or 'emend init' in a project folder.",
     after_help = "Environment: EMEND_HOME sets where your signing identity is kept (default: your config folder); \
-EMEND_NOW fixes the time recorded in commits (RFC 3339, for reproducible runs); NO_COLOR turns colour off."
+EMEND_NOW fixes the time recorded in commits (RFC 3339, for reproducible runs); NO_COLOR turns colour off; \
+EMEND_STORE names the store to use (its .emend/store.sqlite file or project folder) instead of the one found by walking up \
+from the current folder, which is refused when another user owns it. Commands that only read (verify, show, export, log, why, \
+diff, status, check, profile, tags) work on a store you can read but not write."
 )]
 struct Cli {
     #[command(subcommand)]

@@ -18,9 +18,116 @@ pub const BAD: Style = Style::new()
 /// A value that was changed by a fix.
 pub const CHANGED: Style = Style::new().fg_color(Some(anstyle::Color::Ansi(AnsiColor::Blue)));
 
-/// Standard output that strips styles when it is not a terminal or NO_COLOR is set.
-pub fn stdout() -> anstream::AutoStream<std::io::StdoutLock<'static>> {
-    anstream::AutoStream::auto(std::io::stdout().lock())
+/// Standard output for people: every control character in the text is shown escaped (our own
+/// styles excepted), then styles are stripped when it is not a terminal or NO_COLOR is set.
+/// Every command prints its human output through this one path, so a signer's name or a cell
+/// holding `ESC [2K CR intact` can never repaint the terminal (issue 16).
+pub fn stdout() -> Escaped<anstream::AutoStream<std::io::StdoutLock<'static>>> {
+    Escaped::new(anstream::AutoStream::auto(std::io::stdout().lock()), true)
+}
+
+/// Standard error for people, escaped like [`stdout`].
+pub fn stderr() -> Escaped<anstream::AutoStream<std::io::StderrLock<'static>>> {
+    Escaped::new(anstream::AutoStream::auto(std::io::stderr().lock()), true)
+}
+
+/// Standard output for data (CSV, raw bytes): written exactly as given when it is a pipe or a
+/// file; on a terminal, every control character is shown escaped, since the bytes are then
+/// read by a person, not a program.
+pub fn data_stdout() -> Box<dyn Write> {
+    use std::io::IsTerminal;
+    let raw = std::io::BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
+    if std::io::stdout().is_terminal() {
+        Box::new(Escaped::new(raw, false))
+    } else {
+        Box::new(raw)
+    }
+}
+
+/// A writer that shows every control character as an escape (`\u{1b}`), except the line feed
+/// and tab, and, when `styles` is on, the SGR style sequences (`ESC [ digits;… m`) that only
+/// change colour. Text is passed on a line at a time, so a sequence split across writes is
+/// still seen whole.
+pub struct Escaped<W: Write> {
+    inner: W,
+    pending: Vec<u8>,
+    styles: bool,
+}
+
+impl<W: Write> Escaped<W> {
+    /// Wrap `inner`.
+    pub fn new(inner: W, styles: bool) -> Self {
+        Escaped {
+            inner,
+            pending: Vec::new(),
+            styles,
+        }
+    }
+
+    fn pass(&mut self, upto: usize) -> std::io::Result<()> {
+        let chunk: Vec<u8> = self.pending.drain(..upto).collect();
+        let text = String::from_utf8_lossy(&chunk);
+        self.inner
+            .write_all(escape_controls(&text, self.styles).as_bytes())
+    }
+}
+
+impl<W: Write> Write for Escaped<W> {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        self.pending.extend_from_slice(buf);
+        if let Some(nl) = self.pending.iter().rposition(|&b| b == b'\n') {
+            self.pass(nl + 1)?;
+        }
+        Ok(buf.len())
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        let n = self.pending.len();
+        self.pass(n)?;
+        self.inner.flush()
+    }
+}
+
+impl<W: Write> Drop for Escaped<W> {
+    fn drop(&mut self) {
+        let _ = self.flush();
+    }
+}
+
+/// The one escaping rule for text bound for a terminal: control characters (C0, DEL and C1,
+/// as Unicode defines them) become `\u{…}` escapes; the line feed and tab stay; with `styles`,
+/// an SGR sequence `ESC [ [0-9;]* m` stays too (it changes colour, never the cursor or the
+/// screen). Source for what a control sequence is: ECMA-48, 5th edition (from memory: CSI is
+/// `ESC [`, and a sequence ends at a final byte in 0x40–0x7E; SGR's final byte is `m`).
+pub fn escape_controls(s: &str, styles: bool) -> std::borrow::Cow<'_, str> {
+    if !s.chars().any(|c| c.is_control() && c != '\n' && c != '\t') {
+        return std::borrow::Cow::Borrowed(s);
+    }
+    let mut out = String::with_capacity(s.len() + 16);
+    let mut rest = s;
+    while let Some(c) = rest.chars().next() {
+        if c == '\u{1b}' && styles {
+            let params = rest[1..].strip_prefix('[').map(|p| {
+                p.bytes()
+                    .take_while(|b| b.is_ascii_digit() || *b == b';')
+                    .count()
+            });
+            if let Some(n) = params
+                && rest.as_bytes().get(2 + n) == Some(&b'm')
+            {
+                out.push_str(&rest[..3 + n]);
+                rest = &rest[3 + n..];
+                continue;
+            }
+        }
+        if c.is_control() && c != '\n' && c != '\t' {
+            out.push_str(&c.escape_unicode().to_string());
+        } else {
+            out.push(c);
+        }
+        rest = &rest[c.len_utf8()..];
+    }
+    std::borrow::Cow::Owned(out)
 }
 
 /// Wrap `text` in `style`.
@@ -30,14 +137,21 @@ pub fn paint(style: Style, text: impl std::fmt::Display) -> String {
 
 /// Print an error and the hint the library has for it.
 pub fn error(err: &anyhow::Error) {
-    let mut e = anstream::stderr();
-    let _ = writeln!(e, "{} {err:#}", paint(BAD, "emend: error:"));
+    // Errors quote values (rows, columns, revisions as typed or stored): the message goes
+    // through `clean_lines`, the styles through `stderr`.
+    let mut e = stderr();
+    let _ = writeln!(
+        e,
+        "{} {}",
+        paint(BAD, "emend: error:"),
+        clean_lines(&format!("{err:#}"))
+    );
     let hint = err
         .chain()
         .find_map(|c| c.downcast_ref::<emend::Error>())
         .and_then(emend::Error::hint);
     if let Some(h) = hint {
-        let _ = writeln!(e, "{} {h}", paint(BOLD, "hint:"));
+        let _ = writeln!(e, "{} {}", paint(BOLD, "hint:"), clean_lines(&h));
     }
 }
 
@@ -77,7 +191,7 @@ pub fn table_within(
     width: Option<usize>,
 ) -> (String, usize) {
     let cut = |s: &str| -> String {
-        let clean: String = s
+        let spaced: String = s
             .chars()
             .map(|c| {
                 if c == '\n' || c == '\r' || c == '\t' {
@@ -87,6 +201,8 @@ pub fn table_within(
                 }
             })
             .collect();
+        // Column names and cells alike: no control character reaches the table raw.
+        let clean = clean(&spaced).into_owned();
         if clean.width() > max_width {
             let mut t = String::new();
             let mut used = 0;
@@ -191,6 +307,11 @@ pub fn clean(s: &str) -> std::borrow::Cow<'_, str> {
     )
 }
 
+/// As [`clean`], keeping line feeds: for messages of several lines.
+pub fn clean_lines(s: &str) -> String {
+    s.split('\n').map(clean).collect::<Vec<_>>().join("\n")
+}
+
 /// A value in a change shown to people: quoted, so spaces at either end and doubled spaces
 /// inside can be seen (`'Heron  Pool' → 'Heron Pool'`); missing is `(missing)`.
 pub fn quoted(v: &Option<String>) -> String {
@@ -258,6 +379,34 @@ mod tests {
         );
         assert!(shown.contains("\\u{1b}[2K"), "{shown}");
         assert_eq!(clean("Heron Pool"), "Heron Pool");
+    }
+
+    #[test]
+    fn the_terminal_stream_escapes_forged_sequences_and_keeps_our_styles() {
+        // ECMA-48: CSI (ESC [) "2K" erases the line; OSC (ESC ]) sets the window title; CR
+        // returns the cursor. Only SGR (final byte 'm') changes nothing but colour.
+        let forged = "signer Mallory\u{1b}[2K\rintact\u{1b}]0;owned\u{7}\u{9b}2J\n";
+        let styled = format!("{}\t{}", paint(BAD, "NOT INTACT"), forged);
+        let mut shown = Escaped::new(Vec::new(), true);
+        // Split mid-sequence: the writer still sees each sequence whole.
+        let bytes = styled.as_bytes();
+        shown.write_all(&bytes[..20]).unwrap();
+        shown.write_all(&bytes[20..]).unwrap();
+        shown.flush().unwrap();
+        let text = String::from_utf8(shown.inner.clone()).unwrap();
+        assert!(text.starts_with(&paint(BAD, "NOT INTACT")), "{text:?}");
+        assert!(text.contains("Mallory\\u{1b}[2K\\u{d}intact"), "{text:?}");
+        assert!(text.contains("\\u{1b}]0;owned\\u{7}"), "{text:?}");
+        assert!(
+            text.contains("\\u{9b}2J"),
+            "C1 CSI is escaped too: {text:?}"
+        );
+        assert!(text.contains('\t') && text.ends_with('\n'));
+        // For data on a terminal, even colour sequences are escaped.
+        assert_eq!(escape_controls("\u{1b}[31mred", false), "\\u{1b}[31mred");
+        assert_eq!(escape_controls("plain text\n", false), "plain text\n");
+        // Error messages keep their lines and lose their control characters.
+        assert_eq!(clean_lines("a\u{1b}[2K\nb"), "a\\u{1b}[2K\nb");
     }
 
     #[test]

@@ -179,7 +179,7 @@ fn figures(c: &ColumnProfile) -> String {
 }
 
 pub fn run(cx: &CliContext, a: ProfileArgs) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let reader = store.read();
     let rev = query::resolve(&reader, &a.at)?;
     let version = query::version_at(&reader, &a.table, rev)?;

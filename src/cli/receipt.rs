@@ -89,7 +89,7 @@ pub fn receipt_cmd(cx: &CliContext, a: ReceiptArgs) -> Result<i32> {
         std::fs::write(&file, format!("{}\n", path.display()))
             .with_context(|| format!("writing {}", file.display()))?;
         // The first receipt goes in now, so the file is never empty and its name is checked.
-        let store = cx.store()?;
+        let store = cx.store_read()?;
         let r = make(cx, &store)?;
         append_to(&path, &r.text())?;
         writeln!(
@@ -100,7 +100,7 @@ pub fn receipt_cmd(cx: &CliContext, a: ReceiptArgs) -> Result<i32> {
         )?;
         return Ok(0);
     }
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let r = make(cx, &store)?;
     match (&a.output, &a.append) {
         (Some(path), _) => {
@@ -137,7 +137,7 @@ pub fn after_command(cx: &CliContext, before: Option<(u64, emend::hash::CommitId
         return;
     };
     let result = (|| -> Result<Option<u64>> {
-        let store = cx.store_unchecked()?;
+        let store = cx.store_read_unchecked()?;
         let head = store.read().head()?;
         if head.is_none() || head == before {
             return Ok(None);
@@ -164,5 +164,5 @@ pub fn head_before(cx: &CliContext) -> Option<(u64, emend::hash::CommitId)> {
     if !matches!(kept_in(cx), Ok(Some(_))) {
         return None;
     }
-    cx.store_unchecked().ok()?.read().head().ok().flatten()
+    cx.store_read_unchecked().ok()?.read().head().ok().flatten()
 }

@@ -74,7 +74,7 @@ pub(super) fn rev_label(rev: &Rev) -> String {
 }
 
 pub fn tables(cx: &CliContext, json: bool) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let reader = store.read();
     let head = reader.head()?.map(|(s, _)| s).unwrap_or(0);
     let mut list = Vec::new();
@@ -169,7 +169,7 @@ pub fn tables(cx: &CliContext, json: bool) -> Result<i32> {
 }
 
 pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let reader = store.read();
     let rev = query::resolve(&reader, &a.at)?;
     let v = query::version_at(&reader, &a.table, rev)?;
@@ -462,7 +462,7 @@ pub fn summary(body: &CommitBody) -> String {
 }
 
 pub fn log(cx: &CliContext, a: LogArgs) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let reader = store.read();
     let trusted = reader.trust_list()?;
     let tags = reader.tags()?;

@@ -59,7 +59,7 @@ pub fn tag_cmd(cx: &CliContext, a: TagArgs) -> Result<i32> {
 }
 
 pub fn tags_cmd(cx: &CliContext, json: bool) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let reader = store.read();
     let mut items = Vec::new();
     for (name, seq, target) in reader.tags()? {

@@ -159,7 +159,7 @@ fn read_keys(path: &PathBuf) -> Result<Vec<[u8; 32]>> {
 pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
     // A store holding schema objects emend never made is refused by every other command;
     // verify opens it for reading only, runs nothing in it, and lists them with the rest.
-    let store = match cx.store_unchecked() {
+    let store = match cx.store_read_unchecked() {
         Err(e) => match e.downcast_ref::<emend::Error>() {
             Some(emend::Error::ForeignSchema { path, .. }) => {
                 emend::store::Store::open_for_audit(path)?

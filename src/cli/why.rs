@@ -117,7 +117,7 @@ fn print_event(o: &mut dyn Write, e: &FixEvent, with_change: bool) -> Result<()>
 }
 
 pub fn why_cmd(cx: &CliContext, a: WhyArgs) -> Result<i32> {
-    let store = cx.store()?;
+    let store = cx.store_read()?;
     let reader = store.read();
     let rev = query::resolve(&reader, &a.at)?;
     let mut o = out::stdout();

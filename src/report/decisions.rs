@@ -7,9 +7,11 @@
 //!
 //! A missing value and empty text both write as an empty field (as `export` writes missing
 //! values); the `fix_kind` column tells a `set --missing` apart. Values are written exactly as
-//! stored: nothing is trimmed, and nothing is prefixed to defuse spreadsheet formulas, because
-//! the file is evidence and must match the store byte for byte. Warn users who open it in a
-//! spreadsheet that cells starting with `=`, `+`, `-` or `@` may be taken as formulas.
+//! stored: nothing is trimmed, and by default nothing is prefixed to defuse spreadsheet
+//! formulas, because the file is evidence and must match the store byte for byte. The writer
+//! counts the cells a spreadsheet would run as formulas ([`crate::values::looks_like_formula`])
+//! so the caller can warn; [`write_decisions_csv_with`] with `spreadsheet_safe` defuses them
+//! with a leading apostrophe instead (the file then no longer matches the store).
 
 use std::io::{self, Write};
 
@@ -60,35 +62,60 @@ pub struct DecisionRow {
 /// Writes decision rows one at a time, after the header; for exports too large to collect.
 pub struct DecisionsCsvWriter<'a> {
     out: &'a mut dyn Write,
+    spreadsheet_safe: bool,
+    n_formulas: u64,
 }
 
 impl<'a> DecisionsCsvWriter<'a> {
     /// Writes the header row and returns a writer for the records.
     pub fn new(out: &'a mut dyn Write) -> io::Result<DecisionsCsvWriter<'a>> {
         write_record(out, DECISIONS_HEADER.iter().copied())?;
-        Ok(DecisionsCsvWriter { out })
+        Ok(DecisionsCsvWriter {
+            out,
+            spreadsheet_safe: false,
+            n_formulas: 0,
+        })
+    }
+
+    /// Defuse the cells a spreadsheet would run as formulas with a leading apostrophe.
+    pub fn spreadsheet_safe(mut self, on: bool) -> Self {
+        self.spreadsheet_safe = on;
+        self
+    }
+
+    /// How many cells written so far a spreadsheet would run as formulas.
+    pub fn n_formulas(&self) -> u64 {
+        self.n_formulas
     }
 
     /// Writes one record.
     pub fn write_row(&mut self, r: &DecisionRow) -> io::Result<()> {
         let evidence = r.evidence_blake3.join(" ");
-        write_record(
-            self.out,
-            [
-                r.row.as_str(),
-                r.column.as_str(),
-                r.old.as_deref().unwrap_or(""),
-                r.new.as_deref().unwrap_or(""),
-                r.fix_kind.as_str(),
-                r.reason.as_str(),
-                r.consulted.as_deref().unwrap_or(""),
-                evidence.as_str(),
-                r.commit.as_str(),
-                r.author.as_str(),
-                r.time.as_str(),
-            ]
-            .into_iter(),
-        )
+        let fields = [
+            r.row.as_str(),
+            r.column.as_str(),
+            r.old.as_deref().unwrap_or(""),
+            r.new.as_deref().unwrap_or(""),
+            r.fix_kind.as_str(),
+            r.reason.as_str(),
+            r.consulted.as_deref().unwrap_or(""),
+            evidence.as_str(),
+            r.commit.as_str(),
+            r.author.as_str(),
+            r.time.as_str(),
+        ];
+        let mut shown: Vec<std::borrow::Cow<'_, str>> = Vec::with_capacity(fields.len());
+        for f in fields {
+            if crate::values::looks_like_formula(f) {
+                self.n_formulas += 1;
+                if self.spreadsheet_safe {
+                    shown.push(crate::values::defuse_formula(f).into());
+                    continue;
+                }
+            }
+            shown.push(f.into());
+        }
+        write_record(self.out, shown.iter().map(|f| f.as_ref()))
     }
 }
 
@@ -109,11 +136,21 @@ impl<'a> DecisionsCsvWriter<'a> {
 /// assert!(csv.ends_with("A1,site,Mill Craek,Mill Creek,set,\"typo, see \"\"roster\"\"\",,,c0ffee,Ana,2025-03-01T09:00:00Z\r\n"));
 /// ```
 pub fn write_decisions_csv(rows: &[DecisionRow], out: &mut dyn Write) -> io::Result<()> {
-    let mut w = DecisionsCsvWriter::new(out)?;
+    write_decisions_csv_with(rows, false, out).map(|_| ())
+}
+
+/// As [`write_decisions_csv`], defusing formula-like cells when `spreadsheet_safe`; returns
+/// how many cells a spreadsheet would run as formulas (defused or not).
+pub fn write_decisions_csv_with(
+    rows: &[DecisionRow],
+    spreadsheet_safe: bool,
+    out: &mut dyn Write,
+) -> io::Result<u64> {
+    let mut w = DecisionsCsvWriter::new(out)?.spreadsheet_safe(spreadsheet_safe);
     for r in rows {
         w.write_row(r)?;
     }
-    Ok(())
+    Ok(w.n_formulas())
 }
 
 fn write_record<'f>(out: &mut dyn Write, fields: impl Iterator<Item = &'f str>) -> io::Result<()> {

@@ -28,7 +28,10 @@ pub use csvw::{
     CodebookColumn, CodebookSource, CodebookView, CsvwDatatype, DialectView, EMEND_VOCAB,
     csvw_metadata, csvw_name,
 };
-pub use decisions::{DECISIONS_HEADER, DecisionRow, DecisionsCsvWriter, write_decisions_csv};
+pub use decisions::{
+    DECISIONS_HEADER, DecisionRow, DecisionsCsvWriter, write_decisions_csv,
+    write_decisions_csv_with,
+};
 pub use escape::Esc;
 pub use html::{COLLAPSE_CELLS_AFTER, LEVELS_SHOWN, fmt_count, render_html};
 pub use prov::{ProvCommit, ProvExtract, ProvSigner, ProvView, prov_json};

@@ -265,5 +265,5 @@ pub(super) fn sql_err_busy(e: rusqlite::Error) -> Error {
     {
         return Error::Busy;
     }
-    Error::Sqlite(e)
+    Error::from(e)
 }

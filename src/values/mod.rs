@@ -14,10 +14,12 @@
 //! - Numbers never include `NaN`, `inf` or thousands separators, wherever they are read.
 
 pub mod date;
+pub mod formula;
 pub mod number;
 pub mod transform;
 
 pub use date::{Date, DateForm, parse_date};
+pub use formula::{FORMULA_LEADS, defuse_formula, looks_like_formula};
 pub use number::{Decimal, Number, is_integer, number_value, parse_number};
 
 /// Boolean words, compared ignoring ASCII case. `0`/`1` are numbers at cell level; a column

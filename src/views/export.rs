@@ -9,6 +9,7 @@ use crate::query::Version;
 use crate::store::Reader;
 use crate::table::VersionHashBuilder;
 use crate::table::csv::write_record;
+use std::borrow::Cow;
 use std::io::Write;
 use std::ops::ControlFlow;
 
@@ -25,6 +26,10 @@ pub struct ExportOptions {
     pub notes: bool,
     /// Keep distrusted columns.
     pub with_distrusted: bool,
+    /// Put an apostrophe before every cell (and column name) a spreadsheet would run as a
+    /// formula ([`crate::values::looks_like_formula`]); the output is then no longer the exact
+    /// data. Off by default: an export is the version's exact values.
+    pub spreadsheet_safe: bool,
 }
 
 /// The header of the notes column [`ExportOptions::notes`] adds.
@@ -75,6 +80,21 @@ pub struct ExportOutcome {
     pub n_columns: usize,
     /// Rows left out as excluded.
     pub n_left_out: u64,
+    /// Cells (and column names) that a spreadsheet would run as formulas; defused when
+    /// [`ExportOptions::spreadsheet_safe`] is on, written as they are otherwise.
+    pub n_formulas: u64,
+}
+
+/// A cell's bytes for the CSV; counts it in `n_formulas` when a spreadsheet would run it as a
+/// formula, and defuses it when `safe`.
+fn cell_bytes<'a>(text: &'a str, safe: bool, n_formulas: &mut u64) -> Cow<'a, [u8]> {
+    if crate::values::looks_like_formula(text) {
+        *n_formulas += 1;
+        if safe {
+            return Cow::Owned(crate::values::defuse_formula(text).into_bytes());
+        }
+    }
+    Cow::Borrowed(text.as_bytes())
 }
 
 /// Write a version as CSV in the extract's dialect.
@@ -94,14 +114,19 @@ pub fn export_version(
     } else {
         None
     };
+    let mut n_formulas = 0u64;
+    let safe = opts.spreadsheet_safe;
     if d.bom {
         out.write_all(&[0xEF, 0xBB, 0xBF]).map_err(io)?;
     }
     write_record(
         out,
         keep.iter()
-            .map(|&i| version.header()[i].as_bytes())
-            .chain(notes.as_ref().map(|_| NOTES_COLUMN.as_bytes())),
+            .map(|&i| cell_bytes(&version.header()[i], safe, &mut n_formulas))
+            .chain(notes.as_ref().map(|_| NOTES_COLUMN.as_bytes().into()))
+            .collect::<Vec<_>>()
+            .iter()
+            .map(|c| &c[..]),
         d.delimiter,
         d.quote_all,
         d.crlf,
@@ -127,14 +152,19 @@ pub fn export_version(
                 .map(|l| l.join(" | "))
                 .unwrap_or_default()
         });
+        let mut fields: Vec<Cow<'_, [u8]>> = Vec::with_capacity(keep.len() + 1);
+        for &i in &keep {
+            fields.push(match &row.cells[i] {
+                Some(v) if !v.is_empty() => cell_bytes(v, safe, &mut n_formulas),
+                _ => na.as_bytes().into(),
+            });
+        }
+        if let Some(n) = note.as_deref() {
+            fields.push(cell_bytes(n, safe, &mut n_formulas));
+        }
         write_record(
             out,
-            keep.iter()
-                .map(|&i| match &row.cells[i] {
-                    Some(v) if !v.is_empty() => v.as_bytes(),
-                    _ => na.as_bytes(),
-                })
-                .chain(note.as_deref().map(str::as_bytes)),
+            fields.iter().map(|c| &c[..]),
             d.delimiter,
             d.quote_all,
             d.crlf,
@@ -156,6 +186,7 @@ pub fn export_version(
         n_rows,
         n_columns: keep.len(),
         n_left_out,
+        n_formulas,
     })
 }
 
