@@ -65,7 +65,7 @@ impl CliContext {
     /// builds on what the store holds unless the signed history says it.
     pub fn store(&self) -> Result<Store> {
         let store = self.store_unchecked()?;
-        emend::query::guard::check(&store.read())?;
+        store.snapshot(emend::query::guard::check)?;
         Ok(store)
     }
 
@@ -81,7 +81,7 @@ impl CliContext {
     /// a store the user can read but not write still works, and checked the same way.
     pub fn store_read(&self) -> Result<Store> {
         let store = self.store_read_unchecked()?;
-        emend::query::guard::check(&store.read())?;
+        store.snapshot(emend::query::guard::check)?;
         Ok(store)
     }
 

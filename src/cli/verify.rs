@@ -178,7 +178,8 @@ pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
             let _ = write!(anstream::stderr(), "\rverifying {stage}…          ");
         }
     };
-    let mut report = run_verify(&store.read(), &trust, &mut progress)?;
+    // One snapshot, so commits landing meanwhile from another process are not half-seen.
+    let mut report = store.snapshot(|r| run_verify(r, &trust, &mut progress))?;
     let receipts = check_receipts(&store.read(), &a.receipt, &mut report)?;
     if show_progress {
         let _ = write!(anstream::stderr(), "\r{}\r", " ".repeat(40));

@@ -512,6 +512,15 @@ impl Store {
         Reader { conn: &self.conn }
     }
 
+    /// Run `f` on one consistent snapshot of the store: every query inside sees the same
+    /// commits, even while other processes commit (a read transaction in WAL mode).
+    pub fn snapshot<T>(&self, f: impl FnOnce(&Reader<'_>) -> Result<T>) -> Result<T> {
+        let tx = self.conn.unchecked_transaction()?;
+        let out = f(&Reader { conn: &tx });
+        tx.finish()?;
+        out
+    }
+
     /// Start one all-or-nothing write.
     pub fn transaction(&mut self) -> Result<WriteTx<'_>> {
         let tx = self
