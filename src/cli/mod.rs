@@ -43,7 +43,10 @@ pub const EXIT_UNTRUSTED: i32 = 3;
 of cell-level edits with a reason, and rebuilds, exports and verifies any cleaned version.\n\n\
 Start with 'emend demo' to see a worked example, or 'emend init' in a project folder.",
     after_help = "Environment: EMEND_HOME sets where your signing identity is kept (default: your config folder); \
-EMEND_NOW fixes the time recorded in commits (RFC 3339, for reproducible runs); NO_COLOR turns colour off."
+EMEND_NOW fixes the time recorded in commits (RFC 3339, for reproducible runs); NO_COLOR turns colour off; \
+EMEND_MAX_FIELD_MIB is the largest field or row an input CSV may hold (default 64 MiB); \
+EMEND_MAX_EVIDENCE_MIB is the largest evidence or rules file (default 256 MiB).\n\n\
+Inputs are regular files or pipes, each read once; 'emend ingest -' reads the extract from standard input."
 )]
 struct Cli {
     #[command(subcommand)]

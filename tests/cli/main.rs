@@ -6,6 +6,7 @@ mod util;
 #[path = "../../src/testdata.rs"]
 mod testdata;
 
+mod attacks_input;
 mod audit;
 mod bad_input;
 mod carry;
