@@ -198,7 +198,7 @@ pub enum Error {
 /// A size in bytes as MiB for messages ("256 MiB", "0.5 MiB").
 pub(crate) fn mib(bytes: u64) -> String {
     const MIB: u64 = 1024 * 1024;
-    if bytes % MIB == 0 {
+    if bytes.is_multiple_of(MIB) {
         format!("{} MiB", bytes / MIB)
     } else {
         format!("{:.3} MiB", bytes as f64 / MIB as f64)
