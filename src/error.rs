@@ -44,6 +44,28 @@ pub enum Error {
     /// A path that names a folder where a file is needed (an extract, evidence, rules).
     #[error("{0} is a folder, not a file")]
     NotAFile(PathBuf),
+    /// A path that names a device, a socket or anything else that is neither a regular file
+    /// nor a pipe (reading `/dev/zero` would never end).
+    #[error("{path} is {kind}, not a file or a pipe")]
+    NotAnInput {
+        /// The path given.
+        path: PathBuf,
+        /// What it is, as "a character device".
+        kind: &'static str,
+    },
+    /// An input (evidence, a rules file) larger than the limit it is read with.
+    #[error("{path} is larger than the limit of {} for evidence and rules files", mib(*limit))]
+    TooLarge {
+        /// The file.
+        path: PathBuf,
+        /// The limit, in bytes.
+        limit: u64,
+    },
+    /// A regular file whose size or modification time moved while it was read.
+    #[error(
+        "{0} changed while it was being read; wait until it is completely written and try again"
+    )]
+    Changed(PathBuf),
     /// The key named at ingest does not identify each row.
     #[error("{path}: {problem}")]
     DuplicateKey {
@@ -235,6 +257,16 @@ impl From<rusqlite::Error> for Error {
 /// The advice for commands that only read, shared by the read-only variants.
 const READING_STILL_WORKS: &str = "commands that only read (verify, show, export, log, why, diff, status, check, profile, tags) still work";
 
+/// A size in bytes as MiB for messages ("256 MiB", "0.5 MiB").
+pub(crate) fn mib(bytes: u64) -> String {
+    const MIB: u64 = 1024 * 1024;
+    if bytes.is_multiple_of(MIB) {
+        format!("{} MiB", bytes / MIB)
+    } else {
+        format!("{:.3} MiB", bytes as f64 / MIB as f64)
+    }
+}
+
 impl Error {
     /// What the user can do next, when the library knows.
     pub fn hint(&self) -> Option<String> {
@@ -286,6 +318,13 @@ impl Error {
                 "'emend status' lists them; 'emend commit -m ...' or 'emend discard'".into()
             }
             Error::TagTaken { .. } => "'emend tags' lists the names in use".into(),
+            Error::NotAnInput { .. } | Error::NotAFile(_) => {
+                "give a regular file or a pipe (for ingest, '-' reads standard input); nothing was stored".into()
+            }
+            Error::TooLarge { .. } => {
+                "nothing was stored; set EMEND_MAX_EVIDENCE_MIB to a larger number of MiB to raise the limit".into()
+            }
+            Error::Changed(_) => "nothing was stored".into(),
             _ => return None,
         })
     }

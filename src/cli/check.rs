@@ -52,6 +52,7 @@ pub fn adopt(cx: &CliContext, a: RulesArgs) -> Result<i32> {
         &a.meta.evidence,
         a.meta.consulted.clone(),
         &ctx,
+        &cx.evidence_limits()?,
     )?;
     writeln!(
         out::stdout(),
@@ -74,7 +75,7 @@ pub fn check(cx: &CliContext, a: CheckArgs) -> Result<i32> {
     let (source, text) = match &a.rules {
         Some(p) => (
             format!("{} (not adopted)", p.display()),
-            adopt::read_text(p)?,
+            adopt::read_text(p, &cx.evidence_limits()?)?,
         ),
         None => {
             let upto = if rev.raw { version.seq } else { rev.seq };

@@ -1,8 +1,9 @@
 //! What one run of `emend` works with, read once from the environment by [`CliContext::from_env`]
 //! and passed to every command: the folder it runs in, the clock (`EMEND_NOW` or the system
-//! time), where signing identities live (`EMEND_HOME` or the config folder), and the store
-//! named explicitly (`EMEND_STORE`), if any. Commands ask the context; none of them reads the
-//! environment or the clock on its own.
+//! time), where signing identities live (`EMEND_HOME` or the config folder), the store
+//! named explicitly (`EMEND_STORE`), if any, and the input limits (`EMEND_MAX_FIELD_MIB`,
+//! `EMEND_MAX_EVIDENCE_MIB`). Commands ask the context; none of them reads the environment
+//! or the clock on its own.
 
 use super::id::{self, Identity};
 use anyhow::{Result, anyhow};
@@ -16,6 +17,22 @@ pub struct CliContext {
     fixed_now: Option<String>,
     home: Option<PathBuf>,
     store: Option<PathBuf>,
+    max_field_mib: Option<String>,
+    max_evidence_mib: Option<String>,
+}
+
+/// A limit in MiB from the environment variable `var` (its text `value`), in bytes.
+fn mib_limit(var: &str, value: Option<&str>, default: u64) -> Result<u64> {
+    let Some(text) = value else {
+        return Ok(default);
+    };
+    match text.trim().parse::<u64>() {
+        Ok(n) if n > 0 && n <= 1 << 40 => Ok(n * 1024 * 1024),
+        _ => Err(anyhow!(
+            "{var}='{text}' is not a whole number of MiB from 1 up; e.g. {var}={}",
+            default / (1024 * 1024) * 4
+        )),
+    }
 }
 
 impl CliContext {
@@ -28,6 +45,32 @@ impl CliContext {
             store: std::env::var_os("EMEND_STORE")
                 .filter(|s| !s.is_empty())
                 .map(PathBuf::from),
+            max_field_mib: std::env::var("EMEND_MAX_FIELD_MIB").ok(),
+            max_evidence_mib: std::env::var("EMEND_MAX_EVIDENCE_MIB").ok(),
+        })
+    }
+
+    /// The largest field (and record) an input CSV may hold: `EMEND_MAX_FIELD_MIB`, 64 MiB by
+    /// default.
+    pub fn max_field(&self) -> Result<usize> {
+        let bytes = mib_limit(
+            "EMEND_MAX_FIELD_MIB",
+            self.max_field_mib.as_deref(),
+            emend::table::csv::DEFAULT_MAX_FIELD as u64,
+        )?;
+        Ok(usize::try_from(bytes).unwrap_or(usize::MAX))
+    }
+
+    /// How evidence and rules files are opened: at most `EMEND_MAX_EVIDENCE_MIB` (256 MiB by
+    /// default), pipes copied beside the store.
+    pub fn evidence_limits(&self) -> Result<emend::ingest::InputOptions> {
+        Ok(emend::ingest::InputOptions {
+            max_bytes: Some(mib_limit(
+                "EMEND_MAX_EVIDENCE_MIB",
+                self.max_evidence_mib.as_deref(),
+                emend::ingest::DEFAULT_MAX_EVIDENCE,
+            )?),
+            spool_dir: None,
         })
     }
 

@@ -70,6 +70,7 @@ fn fix(store: &mut Store, now: &str, step: Step<'_>) -> Result<()> {
             by: None,
         },
         now,
+        &Default::default(),
     )?;
     Ok(())
 }
@@ -110,6 +111,7 @@ pub fn run(cx: &CliContext, a: DemoArgs) -> Result<i32> {
         &[],
         Some("programme scientist".into()),
         &ctx,
+        &Default::default(),
     )?;
     let pairs = |list: &[(&str, &str)]| -> Vec<(String, String)> {
         list.iter()

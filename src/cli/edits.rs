@@ -97,7 +97,7 @@ pub fn record(
         despite: meta.despite,
         by: cx.recorder()?,
     };
-    let recorded = ledger::record_fix(&mut store, req, &now)?;
+    let recorded = ledger::record_fix(&mut store, req, &now, &cx.evidence_limits()?)?;
     let mut o = out::stdout();
     writeln!(
         o,
@@ -421,7 +421,7 @@ pub fn decisions(cx: &CliContext, cmd: DecisionsCommand) -> Result<i32> {
     let DecisionsCommand::Apply(a) = cmd;
     let path = &a.file;
     let file = emend::ingest::open_input(path)?;
-    let mut reader = emend::table::csv::CsvReader::new(file, b',');
+    let mut reader = emend::table::csv::CsvReader::new(file.reader(), b',');
     let mut rec = emend::table::csv::RawRecord::default();
     let mut header: Vec<String> = Vec::new();
     let mut lines: Vec<(u64, Vec<String>)> = Vec::new();
@@ -558,8 +558,14 @@ pub fn decisions(cx: &CliContext, cmd: DecisionsCommand) -> Result<i32> {
     let mut store = cx.store()?;
     let now = cx.now()?;
     let line_of: Vec<u64> = reqs.iter().map(|(l, _)| *l).collect();
-    let done = ledger::record_fixes(&mut store, reqs.into_iter().map(|(_, r)| r).collect(), &now)
-        .map_err(|(i, e)| {
+    let limits = cx.evidence_limits()?;
+    let done = ledger::record_fixes(
+        &mut store,
+        reqs.into_iter().map(|(_, r)| r).collect(),
+        &now,
+        &limits,
+    )
+    .map_err(|(i, e)| {
         let line = i
             .checked_sub(1)
             .and_then(|i| line_of.get(i))

@@ -18,7 +18,9 @@ pub struct FixMeta {
     /// Why this fix is right (required, recorded in the signed commit)
     #[arg(long, value_name = "REASON")]
     pub why: String,
-    /// A file that backs the decision (stored content-addressed); may be repeated
+    /// A file that backs the decision (stored content-addressed); may be repeated. A regular
+    /// file or a pipe of at most EMEND_MAX_EVIDENCE_MIB (default 256 MiB), read before the
+    /// store is locked
     #[arg(long, value_name = "FILE")]
     pub evidence: Vec<PathBuf>,
     /// Who was consulted about it
@@ -224,7 +226,7 @@ pub fn set(cx: &CliContext, a: SetArgs) -> Result<i32> {
 
 fn read_map(path: &std::path::Path) -> Result<Vec<(String, String)>> {
     let file = emend::ingest::open_input(path)?;
-    let mut reader = emend::table::csv::CsvReader::new(file, b',');
+    let mut reader = emend::table::csv::CsvReader::new(file.reader(), b',');
     let mut rec = emend::table::csv::RawRecord::default();
     let mut pairs = Vec::new();
     loop {

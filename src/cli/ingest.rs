@@ -8,13 +8,17 @@ use emend::ledger;
 use emend::model::TextEncoding;
 use emend::signing::fingerprint;
 use std::io::Write;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 use super::context::CliContext;
 
+/// What errors and the commit call standard input when the extract is '-'.
+const STDIN_NAME: &str = "<stdin>";
+
 #[derive(Args, Debug)]
 pub struct IngestArgs {
-    /// The extract: a CSV or TSV file, kept byte for byte
+    /// The extract: a CSV or TSV file (or a named pipe), kept byte for byte; '-' reads standard
+    /// input. A file that changes while it is read is refused
     file: PathBuf,
     /// Table name (letters, digits, '_', '-', '.')
     #[arg(long, short = 't')]
@@ -98,12 +102,22 @@ pub fn ingest(cx: &CliContext, args: IngestArgs) -> Result<i32> {
             .collect(),
         delimiter: args.delimiter.as_deref().map(parse_delimiter).transpose()?,
         encoding,
+        max_field: Some(cx.max_field()?),
     };
     let started = std::time::Instant::now();
     let ctx = id.context(cx.now()?);
-    let (done, outcome) = ledger::ingest(
+    // Read once, through one handle; a pipe (and standard input) is first copied to a private
+    // file beside the store, before the write lock is taken.
+    let spool = ledger::spool_beside(&store);
+    let mut input = if args.file.as_os_str() == "-" {
+        emend::ingest::Input::spool(Path::new(STDIN_NAME), std::io::stdin().lock(), &spool)
+    } else {
+        emend::ingest::Input::open(&args.file, &spool)
+    }
+    .with_context(|| format!("ingesting {}", args.file.display()))?;
+    let (done, outcome) = ledger::ingest_input(
         &mut store,
-        &args.file,
+        &mut input,
         &opts,
         args.message.as_deref().unwrap_or(""),
         &ctx,

@@ -47,7 +47,10 @@ Start with 'emend demo' to see a worked example, or 'emend init' in a project fo
 EMEND_NOW fixes the time recorded in commits (RFC 3339, for reproducible runs); NO_COLOR turns colour off; \
 EMEND_STORE names the store to use (its .emend/store.sqlite file or project folder) instead of the one found by walking up \
 from the current folder, which is refused when another user owns it. Commands that only read (verify, show, export, log, why, \
-diff, status, check, profile, tags) work on a store you can read but not write."
+diff, status, check, profile, tags) work on a store you can read but not write. \
+EMEND_MAX_FIELD_MIB is the largest field or row an input CSV may hold (default 64 MiB); \
+EMEND_MAX_EVIDENCE_MIB is the largest evidence or rules file (default 256 MiB).\n\n\
+Inputs are regular files or pipes, each read once; 'emend ingest -' reads the extract from standard input."
 )]
 struct Cli {
     #[command(subcommand)]

@@ -1,10 +1,20 @@
 //! Raw extract bytes to an immutable stored snapshot. Never changes a value.
 //!
+//! The file is opened once as an [`Input`] and read through that one handle, never again by path
+//! (issue 16): a pipe is first copied to a private file, a regular file is read up to its size at
+//! open and refused at the end if its size or modification time moved meanwhile.
+//!
 //! One streaming pass reads the file once: every byte goes to the whole-file BLAKE3 hasher and
 //! into 1 MiB pieces that a second thread hashes and compresses, while this thread parses the
 //! records to validate them (header, field counts, encoding, key uniqueness) and computes the
 //! canonical version hash. Memory stays at a few pieces plus 8 bytes per row for the key check.
 //! Any problem aborts the surrounding transaction, so a bad file leaves the store unchanged.
+//! Only the rows behind a repeated key hash are looked up in a second pass, through the same
+//! handle after seeking back, and that pass must hash to the same bytes as the first.
+
+mod input;
+
+pub use input::{DEFAULT_MAX_EVIDENCE, Input, InputOptions};
 
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, ChunkId, Digest, VersionHash};
@@ -15,6 +25,7 @@ use crate::table::{RowIdBuilder, VersionHashBuilder, decode_into, guess_delimite
 use std::fs::File;
 use std::hash::{BuildHasher, Hasher};
 use std::io::Read;
+use std::io::Take;
 use std::path::{Path, PathBuf};
 use std::sync::mpsc;
 
@@ -32,6 +43,9 @@ pub struct IngestOptions {
     pub delimiter: Option<u8>,
     /// Text encoding; UTF-8 when `None`.
     pub encoding: Option<TextEncoding>,
+    /// The largest field (and record) in bytes; [`crate::table::csv::DEFAULT_MAX_FIELD`] when
+    /// `None`.
+    pub max_field: Option<usize>,
 }
 
 /// What an ingest stored.
@@ -48,15 +62,15 @@ pub struct IngestOutcome {
 }
 
 /// Reads the file, feeding the whole-file hash and the piece pipeline.
-struct Tee {
-    file: File,
+struct Tee<'a> {
+    file: Take<&'a File>,
     hasher: blake3::Hasher,
     piece: Vec<u8>,
     to_worker: Option<mpsc::SyncSender<Vec<u8>>>,
     n_bytes: u64,
 }
 
-impl Tee {
+impl Tee<'_> {
     fn flush_piece(&mut self) -> std::io::Result<()> {
         if self.piece.is_empty() {
             return Ok(());
@@ -70,7 +84,7 @@ impl Tee {
     }
 }
 
-impl Read for Tee {
+impl Read for Tee<'_> {
     fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
         let n = self.file.read(buf)?;
         let mut data = &buf[..n];
@@ -157,14 +171,10 @@ fn compress_worker(
     }
 }
 
-/// Open `path` with an error that says which file and what to do.
-pub fn open_input(path: &Path) -> Result<File> {
-    let file = File::open(path).map_err(|e| Error::io(path, e))?;
-    let meta = file.metadata().map_err(|e| Error::io(path, e))?;
-    if meta.is_dir() {
-        return Err(Error::NotAFile(path.to_path_buf()));
-    }
-    Ok(file)
+/// Open `path` as an [`Input`] without limits, with an error that says which file and what to
+/// do: devices, sockets and folders are refused, a FIFO is copied to a private file.
+pub fn open_input(path: &Path) -> Result<Input> {
+    Input::open(path, &InputOptions::default())
 }
 
 fn bad(path: &Path, line: u64, column: u64, problem: impl Into<String>) -> Error {
@@ -186,16 +196,24 @@ fn csv_error(path: &Path, e: ReadError) -> Error {
     }
 }
 
-/// Stream a file into the store as a new extract of `opts.table`, inside `tx`.
+/// Stream an opened file into the store as a new extract of `opts.table`, inside `tx`.
 ///
 /// Validates everything an extract must satisfy; on any error nothing written here survives,
-/// because the caller drops the transaction.
-pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Result<IngestOutcome> {
-    let mut file = open_input(path)?;
+/// because the caller drops the transaction. Everything is read through `input`'s one handle,
+/// and a regular file that changed while it was read is refused ([`Error::Changed`]).
+pub fn store_extract(
+    tx: &WriteTx<'_>,
+    input: &mut Input,
+    opts: &IngestOptions,
+) -> Result<IngestOutcome> {
+    let path = &input.path().to_path_buf();
     let encoding = opts.encoding.unwrap_or(TextEncoding::Utf8);
+    let max_field = opts
+        .max_field
+        .unwrap_or(crate::table::csv::DEFAULT_MAX_FIELD);
     // Peek at the start for the delimiter and the header's shape, then rewind.
     let mut head = vec![0u8; 64 * 1024];
-    let n_head = read_full(&mut file, &mut head).map_err(|e| Error::io(path, e))?;
+    let n_head = read_full(&mut input.reader(), &mut head).map_err(|e| Error::io(path, e))?;
     head.truncate(n_head);
     if head.is_empty() {
         return Err(Error::BadFile {
@@ -206,8 +224,7 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
     let delimiter = opts
         .delimiter
         .unwrap_or_else(|| guess_delimiter(path, strip_bom(&head)));
-    use std::io::Seek;
-    file.rewind().map_err(|e| Error::io(path, e))?;
+    input.rewind()?;
 
     let (piece_tx, piece_rx) = mpsc::sync_channel::<Vec<u8>>(2);
     let (done_tx, done_rx) = mpsc::channel();
@@ -228,13 +245,13 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
         .transpose()?;
     let worker = std::thread::spawn(move || compress_worker(piece_rx, done_tx, previous));
     let tee = Tee {
-        file,
+        file: input.reader(),
         hasher: blake3::Hasher::new(),
         piece: Vec::with_capacity(PIECE_SIZE),
         to_worker: Some(piece_tx),
         n_bytes: 0,
     };
-    let mut reader = CsvReader::new(tee, delimiter);
+    let mut reader = CsvReader::new(tee, delimiter).with_max_field(max_field);
     let mut chunks: Vec<ChunkId> = Vec::new();
     let mut new_bytes = 0u64;
     let drain = |block: bool, chunks: &mut Vec<ChunkId>, new_bytes: &mut u64| -> Result<()> {
@@ -274,6 +291,10 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
         }
         let mut text = String::new();
         let mut header: Vec<String> = Vec::with_capacity(rec.len());
+        // Each name's first column: one lookup per column, so a header of a million columns
+        // is checked in linear time.
+        let mut first_col: std::collections::HashMap<String, usize> =
+            std::collections::HashMap::with_capacity(rec.len());
         for (i, field) in rec.iter().enumerate() {
             decode_into(field, encoding, &mut text).map_err(|at| utf8_error(path, &rec, i, at))?;
             let name = text.trim().to_string();
@@ -285,7 +306,7 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
                     "empty column name in the header",
                 ));
             }
-            if let Some(j) = header.iter().position(|h| *h == name) {
+            if let Some(j) = first_col.get(&name) {
                 return Err(bad(
                     path,
                     rec.line,
@@ -293,6 +314,7 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
                     format!("duplicate column name '{name}' (also column {})", j + 1),
                 ));
             }
+            first_col.insert(name.clone(), i);
             header.push(name);
         }
         let header_line = rec.line;
@@ -300,16 +322,13 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
         let quote_all = header_quoted(strip_bom(&head), delimiter, header.len());
         let mut key_idx = Vec::new();
         for k in &opts.key {
-            let idx = header
-                .iter()
-                .position(|h| h == k)
-                .ok_or_else(|| Error::BadFile {
-                    path: path.to_path_buf(),
-                    problem: format!(
-                        "key column '{k}' is not in the header (columns: {})",
-                        header.join(", ")
-                    ),
-                })?;
+            let idx = *first_col.get(k).ok_or_else(|| Error::BadFile {
+                path: path.to_path_buf(),
+                problem: format!(
+                    "key column '{k}' is not in the header (columns: {})",
+                    some_names(&header)
+                ),
+            })?;
             if key_idx.contains(&idx) {
                 return Err(Error::Invalid(format!("key column '{k}' is named twice")));
             }
@@ -383,14 +402,26 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
                 .filter(|w| w[0] == w[1])
                 .map(|w| w[0])
                 .collect();
-            if !dup.is_empty()
-                && let Some(msg) =
-                    list_duplicates(path, delimiter, encoding, &key_idx, &header, &dup)?
-            {
-                return Err(Error::DuplicateKey {
-                    path: path.to_path_buf(),
-                    problem: msg,
-                });
+            if !dup.is_empty() {
+                let first_pass = reader.get_ref().hasher.clone().finalize();
+                let listed = list_duplicates(
+                    input,
+                    first_pass,
+                    ListFormat {
+                        delimiter,
+                        encoding,
+                        max_field,
+                    },
+                    &key_idx,
+                    &header,
+                    &dup,
+                )?;
+                if let Some(msg) = listed {
+                    return Err(Error::DuplicateKey {
+                        path: path.to_path_buf(),
+                        problem: msg,
+                    });
+                }
             }
         }
         let dialect = Dialect {
@@ -403,10 +434,7 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
         let record = IngestRecord {
             table: opts.table.clone(),
             extract: BlobId(Digest([0; 32])),
-            file_name: path
-                .file_name()
-                .map(|n| n.to_string_lossy().into_owned())
-                .unwrap_or_default(),
+            file_name: input.file_name(),
             n_bytes: 0,
             header,
             key: opts.key.clone(),
@@ -435,6 +463,8 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
     let (mut record, version, blank_lines) = result?;
     flushed.map_err(|e| Error::io(path, e))?;
     drained?;
+    // The end check: every byte present at open was read, and the file has not moved since.
+    input.finish(tee.n_bytes)?;
     let extract = BlobId(Digest(*tee.hasher.finalize().as_bytes()));
     record.extract = extract;
     record.n_bytes = tee.n_bytes;
@@ -447,11 +477,26 @@ pub fn store_extract(tx: &WriteTx<'_>, path: &Path, opts: &IngestOptions) -> Res
     })
 }
 
-fn reader_into_tee(reader: CsvReader<Tee>) -> Tee {
+fn reader_into_tee(reader: CsvReader<Tee<'_>>) -> Tee<'_> {
     reader.into_inner()
 }
 
-fn read_full(file: &mut File, buf: &mut [u8]) -> std::io::Result<usize> {
+/// The first names of a header, for messages (a header may have a million).
+fn some_names(header: &[String]) -> String {
+    const SHOWN: usize = 20;
+    let mut text = header
+        .iter()
+        .take(SHOWN)
+        .map(String::as_str)
+        .collect::<Vec<_>>()
+        .join(", ");
+    if header.len() > SHOWN {
+        text.push_str(&format!(" and {} more", header.len() - SHOWN));
+    }
+    text
+}
+
+fn read_full(file: &mut impl Read, buf: &mut [u8]) -> std::io::Result<usize> {
     let mut n = 0;
     while n < buf.len() {
         match file.read(&mut buf[n..]) {
@@ -499,35 +544,71 @@ fn utf8_error(path: &Path, rec: &RawRecord, field: usize, at: usize) -> Error {
     )
 }
 
-/// Second pass over the file to name the rows behind duplicate key hashes.
-fn list_duplicates(
-    path: &Path,
+/// How the extract is read, for the second pass.
+struct ListFormat {
     delimiter: u8,
     encoding: TextEncoding,
+    max_field: usize,
+}
+
+/// Hashes what a second pass reads, to prove it read the bytes the first pass stored.
+struct Rehash<R> {
+    inner: R,
+    hasher: blake3::Hasher,
+}
+
+impl<R: Read> Read for Rehash<R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let n = self.inner.read(buf)?;
+        self.hasher.update(&buf[..n]);
+        Ok(n)
+    }
+}
+
+/// Second pass, through the same handle from its first byte, to name the rows behind duplicate
+/// key hashes. The bytes read must hash to `first_pass` (the whole-file hash of the first
+/// pass): otherwise the file was rewritten in place in between, and it is refused rather than
+/// trusted to have no duplicates after all.
+fn list_duplicates(
+    input: &Input,
+    first_pass: blake3::Hash,
+    format: ListFormat,
     key_idx: &[usize],
     header: &[String],
     dup_hashes: &[u64],
 ) -> Result<Option<String>> {
+    let ListFormat {
+        delimiter,
+        encoding,
+        max_field,
+    } = format;
+    let path = &input.path().to_path_buf();
+    input.rewind()?;
     let build =
         std::hash::BuildHasherDefault::<std::collections::hash_map::DefaultHasher>::default();
     let wanted: std::collections::HashSet<u64> = dup_hashes.iter().copied().collect();
     let mut seen: std::collections::HashMap<String, Vec<u64>> = Default::default();
-    let mut reader = CsvReader::new(open_input(path)?, delimiter);
+    let rehash = Rehash {
+        inner: input.reader(),
+        hasher: blake3::Hasher::new(),
+    };
+    let mut reader = CsvReader::new(rehash, delimiter).with_max_field(max_field);
     let mut rec = RawRecord::default();
     let mut first = true;
     let mut cells = vec![String::new(); header.len()];
     let row_ids = RowIdBuilder::new(key_idx.to_vec());
-    while reader
-        .read_record(&mut rec)
-        .map_err(|e| csv_error(path, e))?
-    {
+    // The first pass parsed and decoded these very bytes, so a failure now means they changed.
+    while reader.read_record(&mut rec).map_err(|e| match e {
+        ReadError::Csv(_) => Error::Changed(path.clone()),
+        io => csv_error(path, io),
+    })? {
         if first || rec.is_blank_line() {
             first = false;
             continue;
         }
         for &k in key_idx {
             decode_into(rec.get(k).unwrap_or_default(), encoding, &mut cells[k])
-                .map_err(|at| utf8_error(path, &rec, k, at))?;
+                .map_err(|_| Error::Changed(path.clone()))?;
         }
         let mut key = String::new();
         row_ids.build_into(0, &cells, &mut key);
@@ -536,6 +617,11 @@ fn list_duplicates(
         if wanted.contains(&h.finish()) {
             seen.entry(key).or_default().push(rec.line);
         }
+    }
+    let mut rest = reader.into_inner();
+    std::io::copy(&mut rest, &mut std::io::sink()).map_err(|e| Error::io(path, e))?;
+    if rest.hasher.finalize() != first_pass {
+        return Err(Error::Changed(path.clone()));
     }
     let mut dups: Vec<(String, Vec<u64>)> = seen.into_iter().filter(|(_, l)| l.len() > 1).collect();
     if dups.is_empty() {
@@ -578,7 +664,8 @@ mod tests {
             key: key.iter().map(|k| k.to_string()).collect(),
             ..IngestOptions::default()
         };
-        let out = store_extract(&tx, &path, &opts);
+        let mut input = open_input(&path).unwrap();
+        let out = store_extract(&tx, &mut input, &opts);
         (dir, out)
     }
 

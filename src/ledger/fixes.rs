@@ -6,6 +6,7 @@ use super::apply::{FixApplier, RuleBook};
 use super::seal::{CommitContext, CommitOutcome, seal};
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, Digest};
+use crate::ingest::{Input, InputOptions};
 use crate::model::edit::Rows;
 use crate::model::{CellEdit, Change, Evidence, Fix, FixAction, FixRecord, RowId, TableVersion};
 use crate::query::Version;
@@ -165,10 +166,53 @@ pub struct Recorded {
     pub preview: Option<Preview>,
 }
 
-/// Check a fix against the table's latest version and record it as pending.
-pub fn record_fix(store: &mut Store, req: FixRequest, now: &str) -> Result<Recorded> {
+/// Evidence files opened (pipes copied, sizes checked) before the write lock is taken, each
+/// once however many fixes name it.
+pub struct Attachments {
+    opened: Vec<(PathBuf, Input)>,
+}
+
+impl Attachments {
+    /// Open every file `paths` name, with `opts` (its size limit; pipes are copied to
+    /// `opts.spool_dir`, or beside `store` when that is `None`).
+    pub fn open<'p>(
+        store: &Store,
+        paths: impl IntoIterator<Item = &'p PathBuf>,
+        opts: &InputOptions,
+    ) -> Result<Attachments> {
+        let mut opts = opts.clone();
+        if opts.spool_dir.is_none() {
+            opts.spool_dir = super::ingest::spool_beside(store).spool_dir;
+        }
+        let mut opened: Vec<(PathBuf, Input)> = Vec::new();
+        for path in paths {
+            if !opened.iter().any(|(p, _)| p == path) {
+                opened.push((path.clone(), Input::open(path, &opts)?));
+            }
+        }
+        Ok(Attachments { opened })
+    }
+
+    pub(super) fn get(&self, path: &Path) -> Result<&Input> {
+        self.opened
+            .iter()
+            .find(|(p, _)| p == path)
+            .map(|(_, i)| i)
+            .ok_or_else(|| Error::Invalid(format!("{} was not opened", path.display())))
+    }
+}
+
+/// Check a fix against the table's latest version and record it as pending. Its evidence is
+/// read with `evidence` (the size limit) before the write lock is taken.
+pub fn record_fix(
+    store: &mut Store,
+    req: FixRequest,
+    now: &str,
+    evidence: &InputOptions,
+) -> Result<Recorded> {
+    let files = Attachments::open(store, &req.evidence, evidence)?;
     let tx = store.transaction()?;
-    let done = record_in(&tx, req, now)?;
+    let done = record_in(&tx, req, now, &files)?;
     tx.commit()?;
     Ok(done)
 }
@@ -179,17 +223,25 @@ pub fn record_fixes(
     store: &mut Store,
     reqs: Vec<FixRequest>,
     now: &str,
+    evidence: &InputOptions,
 ) -> std::result::Result<Vec<Recorded>, (usize, Error)> {
+    let files = Attachments::open(store, reqs.iter().flat_map(|r| &r.evidence), evidence)
+        .map_err(|e| (0, e))?;
     let tx = store.transaction().map_err(|e| (0, e))?;
     let mut out = Vec::with_capacity(reqs.len());
     for (i, req) in reqs.into_iter().enumerate() {
-        out.push(record_in(&tx, req, now).map_err(|e| (i + 1, e))?);
+        out.push(record_in(&tx, req, now, &files).map_err(|e| (i + 1, e))?);
     }
     tx.commit().map_err(|e| (0, e))?;
     Ok(out)
 }
 
-fn record_in(tx: &WriteTx<'_>, mut req: FixRequest, now: &str) -> Result<Recorded> {
+fn record_in(
+    tx: &WriteTx<'_>,
+    mut req: FixRequest,
+    now: &str,
+    files: &Attachments,
+) -> Result<Recorded> {
     if req.why.trim().is_empty() {
         return Err(Error::EmptyReason);
     }
@@ -399,7 +451,7 @@ fn record_in(tx: &WriteTx<'_>, mut req: FixRequest, now: &str) -> Result<Recorde
     let note = (!remarks.is_empty()).then(|| remarks.join("; "));
     let mut evidence = Vec::new();
     for path in &req.evidence {
-        let (blob, n_bytes) = store_file(tx, path)?;
+        let (blob, n_bytes) = store_file(tx, files.get(path)?)?;
         evidence.push(Evidence {
             name: path
                 .file_name()
@@ -454,9 +506,21 @@ fn record_in(tx: &WriteTx<'_>, mut req: FixRequest, now: &str) -> Result<Recorde
     })
 }
 
-/// Store any file (evidence) content-addressed, streaming it in pieces.
-pub fn store_file(tx: &WriteTx<'_>, path: &Path) -> Result<(BlobId, u64)> {
-    let mut file = crate::ingest::open_input(path)?;
+/// Store an opened file (evidence) content-addressed, streaming it in pieces from its first
+/// byte; a regular file that changed while it was read is refused.
+pub fn store_file(tx: &WriteTx<'_>, input: &Input) -> Result<(BlobId, u64)> {
+    input.rewind()?;
+    let (id, n_bytes) = store_stream(tx, input.path(), input.reader())?;
+    input.finish(n_bytes)?;
+    Ok((id, n_bytes))
+}
+
+/// Store bytes already read (a rules file, exactly as it was parsed) content-addressed.
+pub fn store_bytes(tx: &WriteTx<'_>, name: &Path, bytes: &[u8]) -> Result<(BlobId, u64)> {
+    store_stream(tx, name, bytes)
+}
+
+fn store_stream(tx: &WriteTx<'_>, path: &Path, mut file: impl Read) -> Result<(BlobId, u64)> {
     let mut hasher = blake3::Hasher::new();
     let mut chunks = Vec::new();
     let mut n_bytes = 0u64;
@@ -789,6 +853,7 @@ mod tests {
                 value: Some("S-9".into()),
             }),
             NOW,
+            &InputOptions::default(),
         );
         assert!(matches!(key, Err(Error::KeyColumn { .. })), "{key:?}");
         let row = record_fix(
@@ -797,6 +862,7 @@ mod tests {
                 row: RowId("S-404".into()),
             }),
             NOW,
+            &InputOptions::default(),
         );
         assert!(matches!(row, Err(Error::UnknownRow { .. })), "{row:?}");
         let mut no_reason = req(FixAction::Distrust {
@@ -804,7 +870,7 @@ mod tests {
         });
         no_reason.why = "  ".into();
         assert!(matches!(
-            record_fix(&mut kit.store, no_reason, NOW),
+            record_fix(&mut kit.store, no_reason, NOW, &InputOptions::default()),
             Err(Error::EmptyReason)
         ));
         assert!(kit.store.read().pending().unwrap().is_empty());

@@ -3,7 +3,7 @@
 
 use super::seal::{CommitContext, CommitOutcome, seal};
 use crate::error::{Error, Result};
-use crate::ingest::{IngestOptions, IngestOutcome};
+use crate::ingest::{IngestOptions, IngestOutcome, Input, InputOptions};
 use crate::model::{Change, TableVersion};
 use crate::query::ingest_record;
 use crate::store::Store;
@@ -29,10 +29,33 @@ pub fn check_table_name(name: &str) -> Result<()> {
     }
 }
 
-/// Ingest a file as a new extract of a table: one signed commit.
+/// Ingest a file as a new extract of a table: one signed commit. A FIFO is copied to a private
+/// file in the store's folder before the write lock is taken.
 pub fn ingest(
     store: &mut Store,
     path: &Path,
+    opts: &IngestOptions,
+    message: &str,
+    ctx: &CommitContext<'_>,
+) -> Result<(CommitOutcome, IngestOutcome)> {
+    check_table_name(&opts.table)?;
+    let mut input = Input::open(path, &spool_beside(store))?;
+    ingest_input(store, &mut input, opts, message, ctx)
+}
+
+/// Where piped inputs are copied: the store's own folder, on the same disk as the store.
+pub fn spool_beside(store: &Store) -> InputOptions {
+    InputOptions {
+        max_bytes: None,
+        spool_dir: store.path().parent().map(Path::to_path_buf),
+    }
+}
+
+/// Ingest an input opened (and, for a pipe, copied) beforehand, so that nothing slow happens
+/// while the write lock is held: one signed commit.
+pub fn ingest_input(
+    store: &mut Store,
+    input: &mut Input,
     opts: &IngestOptions,
     message: &str,
     ctx: &CommitContext<'_>,
@@ -55,13 +78,13 @@ pub fn ingest(
             let _ = extract;
         }
     }
-    let outcome = crate::ingest::store_extract(&tx, path, &opts)?;
+    let outcome = crate::ingest::store_extract(&tx, input, &opts)?;
     if let Some((_, latest)) = tx.read().extract_at(&opts.table, u64::MAX)?
         && latest == outcome.record.extract
     {
         return Err(Error::Invalid(format!(
             "{} is already the newest extract of '{}' (same bytes, {})",
-            path.display(),
+            input.path().display(),
             opts.table,
             latest.short()
         )));

@@ -25,10 +25,10 @@ pub mod trust;
 
 pub use carry::carry;
 pub use fixes::{
-    FixRequest, PREVIEW_SAMPLES, Preview, Recorded, commit_pending, committed_fix, discard,
-    discard_one, record_fix, record_fixes, store_file,
+    Attachments, FixRequest, PREVIEW_SAMPLES, Preview, Recorded, commit_pending, committed_fix,
+    discard, discard_one, record_fix, record_fixes, store_bytes, store_file,
 };
-pub use ingest::{check_table_name, ingest};
+pub use ingest::{check_table_name, ingest, ingest_input, spool_beside};
 pub use seal::{CommitContext, CommitOutcome, seal};
 pub use tag::{check_tag_name, tag};
 pub use trust::{revoke_key, trust, trust_key};

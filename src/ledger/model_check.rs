@@ -239,7 +239,7 @@ fn random_conditions_transforms_and_withdrawals_rebuild_to_the_model() {
                     despite: None,
                     by: None,
                 };
-                record_fix(&mut store, req, NOW).unwrap();
+                record_fix(&mut store, req, NOW, &Default::default()).unwrap();
                 pending.push(action);
             }
             commit_pending(&mut store, "round", &ctx(&s)).unwrap();

@@ -67,7 +67,7 @@ impl Kit {
             despite: None,
             by: None,
         };
-        record_fix(&mut self.store, req, NOW).expect("record fix");
+        record_fix(&mut self.store, req, NOW, &Default::default()).expect("record fix");
     }
 
     /// Commit the pending fixes; returns the commit number.

@@ -151,7 +151,9 @@ impl Version {
         F: FnMut(&RowView<'_>) -> Result<ControlFlow<()>>,
     {
         let blob = reader.open_blob(&self.def.extract)?;
-        let mut csv = CsvReader::new(blob, self.def.dialect.delimiter);
+        // A stored extract met the limits in force when it was ingested (which may have been
+        // raised then), so reading it back applies none.
+        let mut csv = CsvReader::new(blob, self.def.dialect.delimiter).unlimited();
         let mut rec = RawRecord::default();
         let place = || format!("stored extract {}", self.def.extract.short());
         let read = |csv: &mut CsvReader<_>, rec: &mut RawRecord| -> Result<bool> {

@@ -5,10 +5,20 @@
 //! stray quote names its line and field) and must never silently repair a file. It accepts any
 //! single-byte delimiter, CR LF, LF or lone CR line ends, and a UTF-8 byte-order mark at the very
 //! start. Fields are returned as raw bytes; decoding is the caller's job.
+//!
+//! A record holds at most [`DEFAULT_MAX_FIELD`] bytes (64 MiB, raised with
+//! [`CsvReader::with_max_field`]) and [`DEFAULT_MAX_COLUMNS`] fields, so the memory a reader
+//! needs is its buffer plus one such record, whatever the input.
 
 use std::io::Read;
 
 const BUF_SIZE: usize = 256 * 1024;
+
+/// The default largest field, and largest record, in bytes: 64 MiB.
+pub const DEFAULT_MAX_FIELD: usize = 64 * 1024 * 1024;
+
+/// The default largest number of fields in one record: 2^20 (1,048,576).
+pub const DEFAULT_MAX_COLUMNS: usize = 1 << 20;
 
 /// Where and why a file does not parse.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -99,6 +109,8 @@ pub struct CsvReader<R> {
     started: bool,
     bom: bool,
     pending_cr: bool,
+    max_field: usize,
+    max_columns: usize,
 }
 
 impl<R: Read> CsvReader<R> {
@@ -116,7 +128,26 @@ impl<R: Read> CsvReader<R> {
             started: false,
             bom: false,
             pending_cr: false,
+            max_field: DEFAULT_MAX_FIELD,
+            max_columns: DEFAULT_MAX_COLUMNS,
         }
+    }
+
+    /// Refuse a record (and so any field) of more than `max` bytes instead of the default.
+    pub fn with_max_field(mut self, max: usize) -> Self {
+        self.max_field = max;
+        self
+    }
+
+    /// Refuse a record of more than `max` fields instead of the default.
+    pub fn with_max_columns(mut self, max: usize) -> Self {
+        self.max_columns = max;
+        self
+    }
+
+    /// No limits: for stored extracts, which were held to the limits when they were ingested.
+    pub fn unlimited(self) -> Self {
+        self.with_max_field(usize::MAX).with_max_columns(usize::MAX)
     }
 
     /// Whether the input began with a UTF-8 byte-order mark (known after the first record).
@@ -251,6 +282,9 @@ impl<R: Read> CsvReader<R> {
                     State::StartField | State::Unquoted => {
                         if b == delim {
                             rec.ends.push(rec.data.len());
+                            if rec.ends.len() >= self.max_columns {
+                                return Err(self.too_many_columns(rec));
+                            }
                             state = State::StartField;
                         } else if b == b'\n' || b == b'\r' {
                             rec.ends.push(rec.data.len());
@@ -281,6 +315,9 @@ impl<R: Read> CsvReader<R> {
                             self.offset += (end - self.pos) as u64;
                             self.pos = end;
                             state = State::Unquoted;
+                            if rec.data.len() > self.max_field {
+                                return Err(self.too_long(rec));
+                            }
                         }
                     }
                     State::Quoted => {
@@ -294,6 +331,9 @@ impl<R: Read> CsvReader<R> {
                                 self.line += 1;
                             }
                             rec.data.push(b);
+                            if rec.data.len() > self.max_field {
+                                return Err(self.too_long(rec));
+                            }
                         }
                     }
                     State::QuoteInQuoted => {
@@ -302,6 +342,9 @@ impl<R: Read> CsvReader<R> {
                             state = State::Quoted;
                         } else if b == delim {
                             rec.ends.push(rec.data.len());
+                            if rec.ends.len() >= self.max_columns {
+                                return Err(self.too_many_columns(rec));
+                            }
                             state = State::StartField;
                         } else if b == b'\n' || b == b'\r' {
                             rec.ends.push(rec.data.len());
@@ -336,6 +379,39 @@ impl<R: Read> CsvReader<R> {
         } else {
             self.pending_cr = true;
         }
+    }
+
+    /// The record passed `max_field` bytes in its current field; the error names the line the
+    /// record starts on (a quoted field may span lines) and that field.
+    fn too_long(&self, rec: &RawRecord) -> ReadError {
+        let field_start = rec.ends.last().copied().unwrap_or(0);
+        let what = if rec.data.len() - field_start > self.max_field {
+            "field"
+        } else {
+            "record"
+        };
+        ReadError::Csv(CsvError {
+            line: rec.line,
+            column: rec.ends.len() as u64 + 1,
+            offset: self.offset,
+            problem: format!(
+                "the {what} is longer than the limit of {}; if it is meant to be this long, \
+                 set EMEND_MAX_FIELD_MIB to a larger number of MiB",
+                crate::error::mib(self.max_field as u64)
+            ),
+        })
+    }
+
+    fn too_many_columns(&self, rec: &RawRecord) -> ReadError {
+        ReadError::Csv(CsvError {
+            line: rec.line,
+            column: rec.ends.len() as u64 + 1,
+            offset: self.offset,
+            problem: format!(
+                "the record has more than {} fields, the most a table may have",
+                self.max_columns
+            ),
+        })
     }
 
     fn stray_quote(&self, rec: &RawRecord) -> ReadError {
@@ -503,6 +579,43 @@ mod tests {
             lines.push(rec.line);
         }
         assert_eq!(lines, vec![1, 2, 4]);
+    }
+
+    #[test]
+    fn a_field_or_record_over_the_limit_is_refused_naming_line_and_field() {
+        let read_all = |input: &[u8], max: usize, cols: usize| -> Result<usize, CsvError> {
+            let mut r = CsvReader::new(input, b',')
+                .with_max_field(max)
+                .with_max_columns(cols);
+            let mut rec = RawRecord::default();
+            let mut n = 0;
+            loop {
+                match r.read_record(&mut rec) {
+                    Ok(true) => n += 1,
+                    Ok(false) => return Ok(n),
+                    Err(ReadError::Csv(e)) => return Err(e),
+                    Err(ReadError::Io(e)) => panic!("io: {e}"),
+                }
+            }
+        };
+        // At the limit is fine, one byte over is not, quoted or not.
+        assert_eq!(read_all(b"a,b\n12345,1234\n", 9, 8), Ok(2));
+        let e = read_all(b"a,b\n12345,12345\n", 9, 8).unwrap_err();
+        assert_eq!((e.line, e.column), (2, 2), "{e:?}");
+        assert!(e.problem.contains("the record is longer"), "{}", e.problem);
+        let e = read_all(b"a,b\n,\"x\n\n\"\"1234567890\"\n", 9, 8).unwrap_err();
+        assert_eq!(
+            (e.line, e.column),
+            (2, 2),
+            "the line the record starts on: {e:?}"
+        );
+        assert!(e.problem.contains("the field is longer"), "{}", e.problem);
+        assert!(e.problem.contains("EMEND_MAX_FIELD_MIB"), "{}", e.problem);
+        // Columns: three fields pass a limit of three, four do not.
+        assert_eq!(read_all(b"a,b,c\n", 99, 3), Ok(1));
+        let e = read_all(b"a,b,c,d\n", 99, 3).unwrap_err();
+        assert_eq!((e.line, e.column), (1, 4), "{e:?}");
+        assert!(e.problem.contains("more than 3 fields"), "{}", e.problem);
     }
 
     #[test]

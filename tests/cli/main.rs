@@ -7,6 +7,7 @@ mod util;
 mod testdata;
 
 mod attacks;
+mod attacks_input;
 mod attacks_output;
 mod audit;
 mod bad_input;
