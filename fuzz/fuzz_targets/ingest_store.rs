@@ -40,6 +40,7 @@ fuzz_target!(|data: &[u8]| {
         key,
         delimiter: None,
         encoding: None,
+        max_field: None,
     };
     match ingest(&mut store, &file, &opts, "", &ctx) {
         Ok((done, outcome)) => {

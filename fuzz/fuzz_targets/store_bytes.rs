@@ -1,8 +1,9 @@
 //! Fuzz a store file with bytes changed: a small store (an ingest and a fix commit) is built
 //! once; each input names positions and new bytes to write into a copy of its file. Every
 //! command path tried (open, the read check, verify, rebuild and export) must fail with an
-//! error or succeed, never panic or hang; and when the read check passes, verify must find
-//! the store intact (a read never trusts what verify would reject).
+//! error or succeed, never panic or hang; and when the read check passes, verify must find no
+//! problem in the chain, the signatures or the derived rows (a read never trusts what verify
+//! would reject there; stored bytes are checked as they are read).
 #![no_main]
 
 use emend::ingest::IngestOptions;
@@ -36,6 +37,7 @@ fn template() -> &'static Vec<u8> {
             key: vec!["id".into()],
             delimiter: None,
             encoding: None,
+            max_field: None,
         };
         ingest(&mut store, &file, &opts, "", &ctx).expect("ingest");
         let path = store.path().to_path_buf();
@@ -74,8 +76,15 @@ fuzz_target!(|data: &[u8]| {
             let _ = emend::views::export::export_version(&reader, &v, &Default::default(), &mut out);
         }
         if let Ok(report) = report {
+            // Stored bytes are checked as they are read, not by the read check: a version that
+            // cannot be rebuilt, or does not match, is verify's to find (and a read's to refuse).
+            let about_stored_bytes = |what: &str| {
+                what.contains("rebuilt") || what.contains("is not stored") || what.contains("rows, the commit says")
+            };
             let chain_or_index = report.problems.iter().any(|p| {
-                p.object.starts_with("commit ") || p.object.contains("index") || p.object == "store file"
+                (p.object.starts_with("commit ") && !about_stored_bytes(&p.what))
+                    || p.object.contains("index")
+                    || p.object == "store file"
             });
             assert!(!chain_or_index, "the read check passed what verify rejects: {:?}", report.problems);
         }

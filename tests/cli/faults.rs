@@ -311,3 +311,120 @@ fn a_busy_store_makes_a_writer_wait_then_fail_clearly() {
     dir.cmd(["set", "t", "A", "v", "2", "--why", "after the lock"])
         .ok();
 }
+
+/// Issue 16: `withdraw`, `decisions apply`, and the receipt added after a commit, each killed
+/// with SIGKILL at a random point, leave a store that verifies, with each commit and each
+/// batch of decisions whole or absent, and a receipt file whose every receipt holds.
+#[test]
+fn killed_withdraw_decisions_and_receipts_leave_whole_results() {
+    let n = trials();
+    let mut rng = Lcg(1616);
+    let mut finished = [0usize; 3];
+    let template = TestDir::new("crash16_template");
+    setup_store(&template);
+    template.write("a.csv", &big_csv(60_000, "a"));
+    template
+        .cmd(["ingest", "a.csv", "--table", "t", "--key", "id"])
+        .ok();
+    template
+        .cmd([
+            "recode",
+            "t",
+            "site",
+            "--from",
+            "mill creek",
+            "--to",
+            "Mill Creek",
+            "--why",
+            "case",
+        ])
+        .ok();
+    template.cmd(["commit", "-m", "fix"]).ok();
+    // A reviewer's 200 decisions, recorded all or none.
+    let mut review = String::from("row,column,action,value,why\n");
+    for i in 0..200 {
+        review.push_str(&format!(
+            "K{:07},reading,set,{}.25,reviewed\n",
+            i * 293,
+            i % 90
+        ));
+    }
+    template.write("review.csv", &review);
+    let probe = TestDir::new("crash16_probe");
+    probe.copy_from(&template);
+    let t_withdraw_commit = {
+        probe.cmd(["withdraw", "2.1", "--why", "undo"]).ok();
+        timed(&probe, &["commit", "-m", "undo"])
+    };
+    let t_apply = timed(
+        &probe,
+        &["decisions", "apply", "t", "review.csv", "--why", "review"],
+    );
+    let t_commit = timed(&probe, &["commit", "-m", "review"]);
+    for trial in 0..n {
+        let dir = TestDir::new("crash16");
+        dir.copy_from(&template);
+        // A withdrawal, committed and killed.
+        dir.cmd(["withdraw", "2.1", "--why", "undo"]).ok();
+        let delay =
+            Duration::from_micros(rng.below(t_withdraw_commit.as_micros() as u64 * 12 / 10));
+        run_and_kill(&dir, &["commit", "-m", "undo"], delay);
+        dir.cmd(["verify"]).ok();
+        match commits(&dir) {
+            3 => {
+                finished[0] += 1;
+                let d = dir.cmd(["diff", "t", "2", "3", "--json"]).ok().json();
+                assert_eq!(
+                    d["tables"][0]["cells"].as_array().unwrap().len(),
+                    60_000usize.div_ceil(7),
+                    "trial {trial}: the withdrawal reverses every cell of the fix"
+                );
+            }
+            2 => {
+                dir.cmd(["commit", "-m", "undo"]).ok();
+            }
+            other => panic!("trial {trial}: {other} commits"),
+        }
+        // Decisions applied and killed: all 200 pending or none.
+        let delay = Duration::from_micros(rng.below(t_apply.as_micros() as u64 * 12 / 10));
+        run_and_kill(
+            &dir,
+            &["decisions", "apply", "t", "review.csv", "--why", "review"],
+            delay,
+        );
+        dir.cmd(["verify"]).ok();
+        let pending = dir.cmd(["status", "--json"]).ok().json()["pending"]
+            .as_array()
+            .unwrap()
+            .len();
+        assert!(
+            pending == 0 || pending == 200,
+            "trial {trial}: {pending} of 200 decisions pending"
+        );
+        if pending == 200 {
+            finished[1] += 1;
+        } else {
+            dir.cmd(["decisions", "apply", "t", "review.csv", "--why", "review"])
+                .ok();
+        }
+        // The commit killed while receipts are kept automatically.
+        let mut c = dir.command(["commit", "-m", "review"]);
+        c.env("EMEND_RECEIPTS", dir.path("kept.txt"))
+            .stdout(Stdio::null())
+            .stderr(Stdio::null());
+        let mut child = c.spawn().expect("spawn emend");
+        let delay = Duration::from_micros(rng.below(t_commit.as_micros() as u64 * 15 / 10));
+        std::thread::sleep(delay);
+        let _ = child.kill();
+        let _ = child.wait();
+        dir.cmd(["verify"]).ok();
+        if dir.path("kept.txt").exists() && !dir.read("kept.txt").is_empty() {
+            finished[2] += 1;
+            dir.cmd(["verify", "--receipt", "kept.txt"]).ok();
+        }
+    }
+    eprintln!(
+        "crash trials (issue 16): {n} per command; completed before the kill: withdraw commit {}, decisions apply {}, commit with its receipt {}",
+        finished[0], finished[1], finished[2]
+    );
+}
