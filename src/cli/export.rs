@@ -365,12 +365,7 @@ pub fn report(cx: &CliContext, a: ReportArgs) -> Result<i32> {
         emend::query::verify::verify(&reader, &emend::query::verify::Trust::Store, &mut |_| {})?;
     let mut view = emend::views::audit::report_view(&reader, &a.table, rev, &verify, &cx.now()?)?;
     if let Some(id) = cx.try_identity()? {
-        let name = match &id.email {
-            Some(e) => format!("{} <{e}>", id.name),
-            None => id.name.clone(),
-        };
-        view.verify.receipt =
-            Some(emend::query::receipt::make(&reader, &id.signer, &name, &cx.now()?)?.text());
+        view.verify.receipt = Some(super::receipt::signed_by(cx, &reader, &id)?.text());
     }
     let mut f = OutputFile::create(&a.output)?;
     emend::report::render_html(&view, &mut f)?;

@@ -63,13 +63,21 @@ fn append_to(path: &Path, text: &str) -> Result<()> {
     Ok(())
 }
 
-fn make(cx: &CliContext, store: &Store) -> Result<receipt::Receipt> {
-    let id = cx.identity()?;
+/// A receipt of the head, signed by `id` (`Name <email>`).
+pub fn signed_by(
+    cx: &CliContext,
+    reader: &emend::store::Reader<'_>,
+    id: &super::id::Identity,
+) -> Result<receipt::Receipt> {
     let name = match &id.email {
         Some(e) => format!("{} <{e}>", id.name),
         None => id.name.clone(),
     };
-    Ok(receipt::make(&store.read(), &id.signer, &name, &cx.now()?)?)
+    Ok(receipt::make(reader, &id.signer, &name, &cx.now()?)?)
+}
+
+fn make(cx: &CliContext, store: &Store) -> Result<receipt::Receipt> {
+    signed_by(cx, &store.read(), &cx.identity()?)
 }
 
 pub fn receipt_cmd(cx: &CliContext, a: ReceiptArgs) -> Result<i32> {
