@@ -21,9 +21,10 @@ use crate::hash::{BlobId, ChunkId, Digest, VersionHash};
 use crate::model::{Dialect, IngestRecord, RowId, TextEncoding};
 use crate::store::{ChunkCache, DeltaBase, EncodedPiece, PIECE_SIZE, PieceEncoder, Store, WriteTx};
 use crate::table::csv::{CsvReader, RawRecord, ReadError};
-use crate::table::{RowIdBuilder, VersionHashBuilder, decode_into, guess_delimiter};
+use crate::table::{
+    RowIdBuilder, RowMapBuilder, VersionHashBuilder, decode_into, guess_delimiter, key_hash,
+};
 use std::fs::File;
-use std::hash::{BuildHasher, Hasher};
 use std::io::Read;
 use std::io::Take;
 use std::path::{Path, PathBuf};
@@ -59,6 +60,9 @@ pub struct IngestOutcome {
     pub blank_lines: u64,
     /// Compressed bytes newly written (pieces already stored cost nothing).
     pub new_bytes: u64,
+    /// The extract's row map ([`crate::table::row_map`]), for the store to keep with the
+    /// ingest commit.
+    pub row_map: Vec<u8>,
 }
 
 /// Reads the file, feeding the whole-file hash and the piece pipeline.
@@ -278,7 +282,7 @@ pub fn store_extract(
         }
     };
 
-    let result = (|| -> Result<(IngestRecord, VersionHash, u64)> {
+    let result = (|| -> Result<(IngestRecord, VersionHash, u64, Vec<u8>)> {
         let mut rec = RawRecord::default();
         if !reader
             .read_record(&mut rec)
@@ -336,9 +340,7 @@ pub fn store_extract(
         }
 
         let mut hasher = VersionHashBuilder::new(&header);
-        let build =
-            std::hash::BuildHasherDefault::<std::collections::hash_map::DefaultHasher>::default();
-        let mut key_hashes: Vec<u64> = Vec::new();
+        let mut row_map = RowMapBuilder::new(!key_idx.is_empty());
         let mut n_rows = 0u64;
         let mut blank_lines = 0u64;
         let mut cells: Vec<String> = vec![String::new(); header.len()];
@@ -382,11 +384,12 @@ pub fn store_extract(
                 ));
             }
             row_ids.build_into(n_rows, &cells, &mut row_id);
-            if row_ids.is_keyed() {
-                let mut h = build.build_hasher();
-                h.write(row_id.as_bytes());
-                key_hashes.push(h.finish());
-            }
+            let h = if row_ids.is_keyed() {
+                key_hash(row_id.as_bytes())
+            } else {
+                0
+            };
+            row_map.row(n_rows, rec.offset, rec.line, h);
             hasher.raw_row(&row_id, &cells);
         }
         if n_rows == 0 {
@@ -396,12 +399,7 @@ pub fn store_extract(
             });
         }
         if !key_idx.is_empty() {
-            key_hashes.sort_unstable();
-            let dup: Vec<u64> = key_hashes
-                .windows(2)
-                .filter(|w| w[0] == w[1])
-                .map(|w| w[0])
-                .collect();
+            let dup = row_map.repeated_hashes();
             if !dup.is_empty() {
                 let first_pass = reader.get_ref().hasher.clone().finalize();
                 let listed = list_duplicates(
@@ -443,7 +441,8 @@ pub fn store_extract(
         };
         let distrusted = vec![false; record.header.len()];
         let version = hasher.finish(&record.header, &distrusted);
-        Ok((record, version, blank_lines))
+        let map = row_map.finish(reader.offset());
+        Ok((record, version, blank_lines, map))
     })();
 
     // Whatever happened, stop the worker cleanly before returning.
@@ -460,7 +459,7 @@ pub fn store_extract(
         Ok(())
     };
     let _ = worker.join();
-    let (mut record, version, blank_lines) = result?;
+    let (mut record, version, blank_lines, row_map) = result?;
     flushed.map_err(|e| Error::io(path, e))?;
     drained?;
     // The end check: every byte present at open was read, and the file has not moved since.
@@ -474,6 +473,7 @@ pub fn store_extract(
         version,
         blank_lines,
         new_bytes,
+        row_map,
     })
 }
 
@@ -584,8 +584,6 @@ fn list_duplicates(
     } = format;
     let path = &input.path().to_path_buf();
     input.rewind()?;
-    let build =
-        std::hash::BuildHasherDefault::<std::collections::hash_map::DefaultHasher>::default();
     let wanted: std::collections::HashSet<u64> = dup_hashes.iter().copied().collect();
     let mut seen: std::collections::HashMap<String, Vec<u64>> = Default::default();
     let rehash = Rehash {
@@ -612,9 +610,7 @@ fn list_duplicates(
         }
         let mut key = String::new();
         row_ids.build_into(0, &cells, &mut key);
-        let mut h = build.build_hasher();
-        h.write(key.as_bytes());
-        if wanted.contains(&h.finish()) {
+        if wanted.contains(&key_hash(key.as_bytes())) {
             seen.entry(key).or_default().push(rec.line);
         }
     }

@@ -78,7 +78,7 @@ pub fn ingest_input(
             let _ = extract;
         }
     }
-    let outcome = crate::ingest::store_extract(&tx, input, &opts)?;
+    let mut outcome = crate::ingest::store_extract(&tx, input, &opts)?;
     if let Some((_, latest)) = tx.read().extract_at(&opts.table, u64::MAX)?
         && latest == outcome.record.extract
     {
@@ -106,6 +106,7 @@ pub fn ingest_input(
         Change::Ingest(outcome.record.clone()),
         versions,
     )?;
+    tx.put_row_map(done.seq, &std::mem::take(&mut outcome.row_map))?;
     tx.commit()?;
     Ok((done, outcome))
 }

@@ -7,7 +7,8 @@ use crate::hash::VersionHash;
 use crate::model::{IngestRecord, RowId};
 use crate::store::Reader;
 use crate::table::csv::{CsvReader, RawRecord, ReadError};
-use crate::table::{RowIdBuilder, VersionHashBuilder, decode_into};
+use crate::store::ChunkCache;
+use crate::table::{RowIdBuilder, VersionHashBuilder, decode_into, key_hash};
 use std::collections::{HashMap, HashSet};
 use std::ops::ControlFlow;
 
@@ -22,6 +23,15 @@ pub struct RowView<'r> {
     pub cells: &'r [Option<String>],
     /// Whether a fix excluded the row.
     pub excluded: bool,
+}
+
+/// Which rows [`Version::for_each_picked`] reads.
+#[derive(Debug, Clone, Copy)]
+pub enum Pick<'p> {
+    /// These rows, by id (a table without a key names rows by position).
+    Ids(&'p [RowId]),
+    /// The rows at 1-based positions `from..=to`.
+    Positions(u64, u64),
 }
 
 /// A row found by id: (position, cells, excluded).
@@ -155,25 +165,155 @@ impl Version {
         // raised then), so reading it back applies none.
         let mut csv = CsvReader::new(blob, self.def.dialect.delimiter).unlimited();
         let mut rec = RawRecord::default();
-        let place = || format!("stored extract {}", self.def.extract.short());
-        let read = |csv: &mut CsvReader<_>, rec: &mut RawRecord| -> Result<bool> {
-            csv.read_record(rec).map_err(|e| match e {
-                ReadError::Csv(c) => Error::Corrupt(format!(
-                    "{} no longer parses at line {}: {}",
-                    place(),
-                    c.line,
-                    c.problem
-                )),
-                // A damaged chunk arrives wrapped in an io error: hand the store's own error on.
-                ReadError::Io(io) => match io.into_inner().map(|inner| inner.downcast::<Error>()) {
-                    Some(Ok(e)) => *e,
-                    Some(Err(other)) => Error::Corrupt(format!("{}: {other}", place())),
-                    None => Error::Corrupt(format!("{} could not be read", place())),
-                },
-            })
-        };
         // The header was validated at ingest.
-        read(&mut csv, &mut rec)?;
+        self.read_stored(&mut csv, &mut rec)?;
+        self.stream(&mut csv, 0, &mut f).map(|_| ())
+    }
+
+    /// Stream only the rows `pick` names through `f`, in extract order. With the extract's
+    /// row map, only the groups of rows that hold them are read, so the cost does not grow
+    /// with the table; an extract ingested before row maps existed is read in full.
+    ///
+    /// The map only says where to look: every row handed to `f` was parsed from the stored
+    /// extract (each piece checked against its hash) and has the id or position asked for.
+    pub fn for_each_picked<F>(&self, reader: &Reader<'_>, pick: &Pick<'_>, mut f: F) -> Result<()>
+    where
+        F: FnMut(&RowView<'_>) -> Result<ControlFlow<()>>,
+    {
+        let Some(map) = reader.row_map(self.ingest_seq)? else {
+            return self.pick_by_scan(reader, pick, f);
+        };
+        let damaged = |e: String| {
+            Error::Tampered(format!("the row map of commit {}: {e}", self.ingest_seq))
+        };
+        // The groups to read, and what to take from them.
+        let mut groups: Vec<u32> = Vec::new();
+        let (lo, hi, wanted): (u64, u64, Option<HashSet<&str>>) = match pick {
+            Pick::Positions(a, b) => {
+                let a = (*a).max(1);
+                let b = (*b).min(map.n_rows);
+                if a <= b {
+                    let first = map.group_of_pos(a).map_err(damaged)?;
+                    let last = map.group_of_pos(b).map_err(damaged)?;
+                    if let (Some(first), Some(last)) = (first, last) {
+                        groups.extend(first..=last);
+                    }
+                }
+                (a, b, None)
+            }
+            Pick::Ids(ids) if !map.is_keyed() => {
+                // Rows of a table without a key are named by position.
+                let mut positions: Vec<u64> =
+                    ids.iter().filter_map(|id| id.as_str().parse().ok()).collect();
+                positions.sort_unstable();
+                positions.dedup();
+                for p in &positions {
+                    if let Some(g) = map.group_of_pos(*p).map_err(damaged)? {
+                        groups.push(g);
+                    }
+                }
+                (1, u64::MAX, Some(ids.iter().map(|id| id.as_str()).collect()))
+            }
+            Pick::Ids(ids) => {
+                for id in ids.iter() {
+                    groups.extend(
+                        map.groups_of_key(key_hash(id.as_str().as_bytes()))
+                            .map_err(damaged)?,
+                    );
+                }
+                (1, u64::MAX, Some(ids.iter().map(|id| id.as_str()).collect()))
+            }
+        };
+        groups.sort_unstable();
+        groups.dedup();
+        let mut cache = ChunkCache::default();
+        for g in groups {
+            let (group, end) = map.group(g).map_err(damaged)?;
+            let bytes = reader.blob_range(&self.def.extract, group.offset, end, &mut cache)?;
+            let mut csv = CsvReader::new(&bytes[..], self.def.dialect.delimiter)
+                .unlimited()
+                .resume_at(group.offset, group.line);
+            let flow = self.stream(&mut csv, group.first_pos - 1, &mut |row| {
+                if row.pos > hi {
+                    return Ok(ControlFlow::Break(()));
+                }
+                let take = row.pos >= lo
+                    && wanted
+                        .as_ref()
+                        .is_none_or(|w| w.contains(row.id.as_str()));
+                if take { f(row) } else { Ok(ControlFlow::Continue(())) }
+            })?;
+            if flow.is_break() && !matches!(pick, Pick::Ids(_)) {
+                break;
+            }
+        }
+        Ok(())
+    }
+
+    /// [`Version::for_each_picked`] for an extract with no row map: one pass over it all.
+    fn pick_by_scan<F>(&self, reader: &Reader<'_>, pick: &Pick<'_>, mut f: F) -> Result<()>
+    where
+        F: FnMut(&RowView<'_>) -> Result<ControlFlow<()>>,
+    {
+        let wanted: Option<HashSet<&str>> = match pick {
+            Pick::Ids(ids) => Some(ids.iter().map(|id| id.as_str()).collect()),
+            Pick::Positions(..) => None,
+        };
+        let mut left = wanted.as_ref().map_or(0, HashSet::len);
+        self.for_each_row(reader, |row| match (pick, &wanted) {
+            (Pick::Positions(a, b), _) => {
+                if row.pos > *b {
+                    Ok(ControlFlow::Break(()))
+                } else if row.pos >= *a {
+                    f(row)
+                } else {
+                    Ok(ControlFlow::Continue(()))
+                }
+            }
+            (_, Some(w)) if w.contains(row.id.as_str()) => {
+                left -= 1;
+                let flow = f(row)?;
+                if left == 0 {
+                    return Ok(ControlFlow::Break(()));
+                }
+                Ok(flow)
+            }
+            _ => Ok(ControlFlow::Continue(())),
+        })
+    }
+
+    fn read_stored<R: std::io::Read>(
+        &self,
+        csv: &mut CsvReader<R>,
+        rec: &mut RawRecord,
+    ) -> Result<bool> {
+        let place = || format!("stored extract {}", self.def.extract.short());
+        csv.read_record(rec).map_err(|e| match e {
+            ReadError::Csv(c) => Error::Corrupt(format!(
+                "{} no longer parses at line {}: {}",
+                place(),
+                c.line,
+                c.problem
+            )),
+            // A damaged chunk arrives wrapped in an io error: hand the store's own error on.
+            ReadError::Io(io) => match io.into_inner().map(|inner| inner.downcast::<Error>()) {
+                Some(Ok(e)) => *e,
+                Some(Err(other)) => Error::Corrupt(format!("{}: {other}", place())),
+                None => Error::Corrupt(format!("{} could not be read", place())),
+            },
+        })
+    }
+
+    /// Stream the data records `csv` yields, the first being the row after position `pos`,
+    /// through `f`; says whether `f` stopped it.
+    fn stream<R: std::io::Read>(
+        &self,
+        csv: &mut CsvReader<R>,
+        mut pos: u64,
+        f: &mut dyn FnMut(&RowView<'_>) -> Result<ControlFlow<()>>,
+    ) -> Result<ControlFlow<()>> {
+        let place = || format!("stored extract {}", self.def.extract.short());
+        let mut rec = RawRecord::default();
         let n_cols = self.def.header.len();
         let row_ids = RowIdBuilder::new(
             self.def
@@ -185,8 +325,7 @@ impl Version {
         let mut text: Vec<String> = vec![String::new(); n_cols];
         let mut cells: Vec<Option<String>> = vec![None; n_cols];
         let mut id = RowId(String::new());
-        let mut pos = 0u64;
-        while read(&mut csv, &mut rec)? {
+        while self.read_stored(csv, &mut rec)? {
             if rec.is_blank_line() && n_cols > 1 {
                 continue;
             }
@@ -225,10 +364,10 @@ impl Version {
                 excluded: self.excluded.contains(&id.0),
             };
             if f(&view)?.is_break() {
-                break;
+                return Ok(ControlFlow::Break(()));
             }
         }
-        Ok(())
+        Ok(ControlFlow::Continue(()))
     }
 
     /// The canonical hash of this version and its row count.
@@ -255,10 +394,10 @@ impl Version {
         h.finish(self.header(), &self.distrusted)
     }
 
-    /// Find one row by id.
+    /// Find one row by id (through the row map: see [`Version::for_each_picked`]).
     pub fn find_row(&self, reader: &Reader<'_>, row: &RowId) -> Result<Option<FoundRow>> {
         let mut found = None;
-        self.for_each_row(reader, |r| {
+        self.for_each_picked(reader, &Pick::Ids(std::slice::from_ref(row)), |r| {
             if r.id == row {
                 found = Some((r.pos, r.cells.to_vec(), r.excluded));
                 return Ok(ControlFlow::Break(()));

@@ -32,7 +32,7 @@ pub const STORE_DIR: &str = ".emend";
 /// The store file inside [`STORE_DIR`].
 pub const STORE_FILE: &str = "store.sqlite";
 /// The schema version this build writes and reads.
-pub const SCHEMA_VERSION: u32 = 3;
+pub const SCHEMA_VERSION: u32 = 4;
 /// SQLite `application_id` of emend stores ("emnd").
 const APPLICATION_ID: i64 = 0x656d_6e64;
 const SCHEMA: &str = include_str!("schema.sql");
@@ -64,6 +64,11 @@ const MIGRATIONS: &[&str] = &[
         tbl      TEXT NOT NULL,
         conflict BLOB NOT NULL,
         added_at TEXT NOT NULL
+    ) STRICT;",
+    // 3 → 4: row maps of extracts (extracts ingested before have none, and are read in full).
+    "CREATE TABLE row_map (
+        seq  INTEGER PRIMARY KEY REFERENCES commit_log(seq),
+        data BLOB NOT NULL
     ) STRICT;",
 ];
 /// For a store made before schema v3: a signer first trusted by a trust commit is trusted from

@@ -8,6 +8,7 @@ use super::index::{CellEditRow, IndexRows, MarkRow};
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, ChunkId, CommitId};
 use crate::model::{Conflict, Fix, Recorder, RowId};
+use crate::table::row_map::{MapBytes, RowMap};
 use rusqlite::{Connection, OptionalExtension, params};
 use std::path::Path;
 use std::rc::Rc;
@@ -779,6 +780,49 @@ impl<'a> Reader<'a> {
         Ok(BlobReader::new(*self, *id, chunks))
     }
 
+    /// The row map kept with ingest commit `seq`, opened for lookups (none for an extract
+    /// ingested before row maps existed).
+    pub fn row_map(&self, seq: u64) -> Result<Option<RowMap<StoredMap<'a>>>> {
+        let exists = self
+            .conn
+            .prepare_cached("SELECT 1 FROM row_map WHERE seq = ?1")?
+            .query_row(params![sq(seq)], |_| Ok(()))
+            .optional()?;
+        if exists.is_none() {
+            return Ok(None);
+        }
+        let blob = self.conn.blob_open(
+            rusqlite::MAIN_DB,
+            "row_map",
+            "data",
+            sq(seq),
+            true,
+        )?;
+        RowMap::open(StoredMap(blob))
+            .map(Some)
+            .map_err(|e| Error::Tampered(format!("the row map of commit {seq}: {e}")))
+    }
+
+    /// The whole row map of ingest commit `seq`, for `verify` to compare.
+    pub fn row_map_bytes(&self, seq: u64) -> Result<Option<Vec<u8>>> {
+        Ok(self
+            .conn
+            .prepare_cached("SELECT data FROM row_map WHERE seq = ?1")?
+            .query_row(params![sq(seq)], |r| r.get(0))
+            .optional()?)
+    }
+
+    /// The commits that have a row map.
+    pub fn row_map_seqs(&self) -> Result<Vec<u64>> {
+        let mut stmt = self
+            .conn
+            .prepare_cached("SELECT seq FROM row_map ORDER BY seq")?;
+        let rows = stmt.query_map([], |r| r.get::<_, i64>(0))?;
+        Ok(rows
+            .map(|r| r.map(|s| s as u64))
+            .collect::<rusqlite::Result<_>>()?)
+    }
+
     /// Total bytes of compressed chunk data.
     pub fn stored_bytes(&self) -> Result<u64> {
         Ok(self.conn.query_row(
@@ -786,6 +830,19 @@ impl<'a> Reader<'a> {
             [],
             |r| r.get::<_, i64>(0),
         )? as u64)
+    }
+}
+
+/// A stored row map, read in place a few bytes at a time (SQLite's incremental blob reads).
+pub struct StoredMap<'a>(rusqlite::blob::Blob<'a>);
+
+impl MapBytes for StoredMap<'_> {
+    fn read_at(&self, at: u64, buf: &mut [u8]) -> std::result::Result<(), String> {
+        let at = usize::try_from(at).map_err(|_| "offset out of range".to_string())?;
+        if at.checked_add(buf.len()).is_none_or(|end| end > self.0.len()) {
+            return Err(format!("the row map ends before byte {}", at + buf.len()));
+        }
+        self.0.read_at_exact(buf, at).map_err(|e| e.to_string())
     }
 }
 

@@ -1,4 +1,4 @@
--- emend store schema, version 2 (PRAGMA user_version = 2).
+-- emend store schema, version 4 (PRAGMA user_version = 4).
 -- Objects (chunk, blob, blob_chunk, commit_log) are append-only: triggers refuse updates and
 -- deletes. Index tables (cell_edit, mark, version_index, extract_index) are derived from commit
 -- bodies inside the same transaction as the commit, and `verify` checks them against the bodies.
@@ -89,6 +89,14 @@ CREATE TABLE extract_index (
     extract BLOB NOT NULL REFERENCES blob(id),
     PRIMARY KEY (tbl, seq)
 ) STRICT, WITHOUT ROWID;
+
+-- Derived: where each row of an ingest commit's extract starts, and which group of rows holds
+-- each key (src/table/row_map.rs), so a row is found without reading the table. Recomputed by
+-- `verify` from the extract.
+CREATE TABLE row_map (
+    seq  INTEGER PRIMARY KEY REFERENCES commit_log(seq),
+    data BLOB NOT NULL
+) STRICT;
 
 -- Derived: one row per cell edit in a fix commit.
 CREATE TABLE cell_edit (

@@ -74,6 +74,15 @@ impl WriteTx<'_> {
         Ok(())
     }
 
+    /// Keep the row map of the extract that ingest commit `seq` adds.
+    pub fn put_row_map(&self, seq: u64, map: &[u8]) -> Result<()> {
+        self.tx.execute(
+            "INSERT INTO row_map (seq, data) VALUES (?1, ?2)",
+            params![seq as i64, map],
+        )?;
+        Ok(())
+    }
+
     /// Append a commit and its derived index rows.
     pub fn append_commit(
         &self,

@@ -150,6 +150,15 @@ impl<R: Read> CsvReader<R> {
         self.with_max_field(usize::MAX).with_max_columns(usize::MAX)
     }
 
+    /// Read from the middle of a file: the input begins at a record's first byte, which is
+    /// byte `offset` and line `line` of the file (no byte-order mark is looked for).
+    pub fn resume_at(mut self, offset: u64, line: u64) -> Self {
+        self.started = true;
+        self.offset = offset;
+        self.line = line;
+        self
+    }
+
     /// Whether the input began with a UTF-8 byte-order mark (known after the first record).
     pub fn saw_bom(&self) -> bool {
         self.bom

@@ -1,6 +1,6 @@
 //! Tables as bytes and text: the strict RFC 4180 reader and writer (`csv`), decoding and the
-//! delimiter guess (`dialect`), the one row-id builder (`row_id`) and the canonical version
-//! hash (`version_hash`).
+//! delimiter guess (`dialect`), the one row-id builder (`row_id`), where each row starts
+//! (`row_map`) and the canonical version hash (`version_hash`).
 //!
 //! Pure and streaming: nothing here touches the store, and every reader works one record at a
 //! time in a reused buffer. Both ingest and the rebuild of a version read through this module,
@@ -9,8 +9,10 @@
 pub mod csv;
 pub mod dialect;
 pub mod row_id;
+pub mod row_map;
 pub mod version_hash;
 
 pub use dialect::{decode_into, guess_delimiter};
 pub use row_id::RowIdBuilder;
+pub use row_map::{RowMap, RowMapBuilder, key_hash};
 pub use version_hash::VersionHashBuilder;
