@@ -255,7 +255,14 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
             .collect::<emend::Result<_>>()?
     };
     let mut picked = Vec::new();
-    v.for_each_row(&reader, |row| {
+    let listed_ids: Vec<emend::model::RowId> = listed.clone().unwrap_or_default();
+    // Rows by key or position are found through the row map; a condition reads every row.
+    let pick = match (&listed, &condition) {
+        (Some(_), _) => Some(query::Pick::Ids(&listed_ids)),
+        (None, None) => Some(query::Pick::Positions(from, to)),
+        (None, Some(_)) => None,
+    };
+    let visit = |row: &query::RowView<'_>| {
         let take = match (&wanted, &condition) {
             (Some(ids), _) => ids.contains(row.id),
             (None, Some(c)) => {
@@ -302,7 +309,11 @@ pub fn show(cx: &CliContext, a: ShowArgs) -> Result<i32> {
             ));
         }
         Ok(ControlFlow::Continue(()))
-    })?;
+    };
+    match &pick {
+        Some(p) => v.for_each_picked(&reader, p, visit)?,
+        None => v.for_each_row(&reader, visit)?,
+    }
     if let Some(l) = &listed
         && let Some(id) = l.iter().find(|id| !picked.iter().any(|p| p.1 == **id))
     {

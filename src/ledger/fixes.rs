@@ -119,8 +119,18 @@ fn preview(
     let mut out = Preview::default();
     let mut cells: Vec<Option<String>> = Vec::new();
     // Every row, excluded or not, as committing does: the counts said here are those the
-    // commit signs.
-    version.for_each_row(reader, |row| {
+    // commit signs. A fix of listed rows reads only those rows, through the row map.
+    let listed = match &fix.action {
+        FixAction::Edit { rows, .. }
+        | FixAction::ExcludeRows { rows, .. }
+        | FixAction::Keep { rows, .. }
+        | FixAction::Note { rows, .. } => match rows {
+            crate::model::edit::Rows::Listed(ids) => Some(ids.as_slice()),
+            _ => None,
+        },
+        _ => None,
+    };
+    let visit = |row: &crate::query::RowView<'_>| {
         cells.clear();
         cells.extend_from_slice(row.cells);
         let mut excluded = row.excluded;
@@ -139,7 +149,11 @@ fn preview(
         });
         out.rows += a.n_chosen() - before;
         Ok(ControlFlow::Continue(()))
-    })?;
+    };
+    match listed {
+        Some(ids) => version.for_each_picked(reader, &crate::query::Pick::Ids(ids), visit)?,
+        None => version.for_each_row(reader, visit)?,
+    }
     if let Some(row) = a.missed_row() {
         return Err(Error::UnknownRow {
             table: version.table.clone(),

@@ -206,7 +206,7 @@ mod tests {
                  DROP TABLE signer;
                  CREATE TABLE signer (key BLOB PRIMARY KEY, name TEXT NOT NULL, email TEXT, added_at TEXT NOT NULL) STRICT;
                  INSERT INTO signer SELECT * FROM old; DROP TABLE old;
-                 DROP TABLE open_conflict; DROP TABLE pending; CREATE TABLE pending (id INTEGER PRIMARY KEY AUTOINCREMENT, tbl TEXT NOT NULL, fix BLOB NOT NULL, note TEXT, added_at TEXT NOT NULL) STRICT;
+                 DROP TABLE row_map; DROP TABLE open_conflict; DROP TABLE pending; CREATE TABLE pending (id INTEGER PRIMARY KEY AUTOINCREMENT, tbl TEXT NOT NULL, fix BLOB NOT NULL, note TEXT, added_at TEXT NOT NULL) STRICT;
                  PRAGMA user_version = 2; -- written {NOW}"
             ))
             .unwrap();

@@ -5,6 +5,7 @@
 //! the same bytes and so the same id.
 
 pub mod edit;
+mod wire;
 
 use crate::hash::{BlobId, CommitId, Digest, VersionHash};
 use edit::{Rows, Transform};
@@ -12,7 +13,7 @@ use serde::{Deserialize, Serialize};
 use std::fmt;
 
 /// The version of the commit body format written by this build.
-pub const BODY_FORMAT: u32 = 1;
+pub const BODY_FORMAT: u32 = 2;
 
 /// Separates the row from the column in the target of a mark on one cell (a kept value, a
 /// note on a cell).
@@ -578,14 +579,36 @@ pub struct CommitBody {
 }
 
 impl CommitBody {
-    /// The canonical bytes (postcard).
+    /// The canonical bytes (postcard): format 1 lists every cell edit in full, format 2
+    /// packs them (`wire.rs`).
     pub fn encode(&self) -> Vec<u8> {
+        if self.format >= 2 {
+            return wire::encode_v2(self);
+        }
         postcard::to_stdvec(self).expect("commit bodies hold only serialisable plain data")
     }
 
-    /// Decode canonical bytes.
+    /// Decode canonical bytes of any format this build knows.
     pub fn decode(bytes: &[u8]) -> crate::Result<Self> {
-        Ok(postcard::from_bytes(bytes)?)
+        Self::decode_with(bytes, true)
+    }
+
+    /// Decode a body without unpacking the cells its fixes changed (their `edits` come back
+    /// empty for format 2 bodies): for readers of the chain, the fixes and the marks only.
+    pub fn decode_without_cells(bytes: &[u8]) -> crate::Result<Self> {
+        Self::decode_with(bytes, false)
+    }
+
+    fn decode_with(bytes: &[u8], cells: bool) -> crate::Result<Self> {
+        // Every format begins with its number.
+        let (format, _) = postcard::take_from_bytes::<u32>(bytes)?;
+        match format {
+            0 | 1 => Ok(postcard::from_bytes(bytes)?),
+            2 => wire::decode_v2(bytes, cells),
+            newer => Err(crate::Error::Corrupt(format!(
+                "a commit body is in format {newer}, newer than this build reads ({BODY_FORMAT}); use a newer emend"
+            ))),
+        }
     }
 
     /// The commit id of these bytes.
@@ -663,6 +686,77 @@ mod tests {
             CommitBody::id_of(&other.encode()),
             CommitBody::id_of(&bytes)
         );
+    }
+
+    #[test]
+    fn format_one_bodies_still_decode_and_keep_their_bytes() {
+        let mut b = body();
+        b.format = 1;
+        let bytes = postcard::to_stdvec(&b).unwrap();
+        assert_eq!(b.encode(), bytes);
+        assert_eq!(CommitBody::decode(&bytes).unwrap(), b);
+        // Format 2 of the same body differs in bytes, not in content.
+        let v2 = body();
+        assert_ne!(v2.encode(), bytes);
+        assert_eq!(CommitBody::decode(&v2.encode()).unwrap().change, b.change);
+    }
+
+    #[test]
+    fn packed_cells_are_small_and_come_back_exact() {
+        // A recode carried onto a large extract: 38,000 cells of two values, rows spread
+        // through a million.
+        let edits: Vec<CellEdit> = (0..38_000u64)
+            .map(|i| CellEdit {
+                row: RowId(format!("S{:07}", i * 26 + 3)),
+                column: "site".into(),
+                old: Some("Heron pool".into()),
+                new: Some(
+                    if i % 7 == 0 {
+                        "Heron Pool"
+                    } else {
+                        "Heron Pool "
+                    }
+                    .trim()
+                    .into(),
+                ),
+            })
+            .collect();
+        let mut b = body();
+        let Change::Fixes(list) = &mut b.change else {
+            unreachable!()
+        };
+        list[0].edits = edits.clone();
+        let v2 = b.encode();
+        let mut v1 = b.clone();
+        v1.format = 1;
+        let v1 = v1.encode();
+        assert!(
+            v2.len() * 10 < v1.len(),
+            "format 2 {} bytes, format 1 {}",
+            v2.len(),
+            v1.len()
+        );
+        assert!(v2.len() < 38_000 * 4, "{} bytes for 38,000 cells", v2.len());
+        assert_eq!(CommitBody::decode(&v2).unwrap(), b);
+        let light = CommitBody::decode_without_cells(&v2).unwrap();
+        let Change::Fixes(list) = light.change else {
+            unreachable!()
+        };
+        assert!(list[0].edits.is_empty());
+    }
+
+    #[test]
+    fn damaged_packed_cells_are_errors() {
+        let bytes = body().encode();
+        for i in 0..bytes.len() {
+            let mut b = bytes.clone();
+            b[i] ^= 0x5a;
+            // Any outcome but a panic: an error, or another valid body.
+            let _ = CommitBody::decode(&b);
+        }
+        let mut newer = bytes.clone();
+        newer[0] = 9;
+        assert!(CommitBody::decode(&newer).is_err());
     }
 
     #[test]

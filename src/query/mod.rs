@@ -24,4 +24,4 @@ pub use diff::align_positions;
 pub use in_force::{breaking_rows, rules_at};
 pub use rev::{Rev, parse_row, parse_rows, resolve, version_at};
 pub use verify::VerifyReport;
-pub use version::{Pick, Version};
+pub use version::{Pick, RowView, Version};

@@ -114,15 +114,17 @@ pub fn parse_rows(reader: &Reader<'_>, table: &str, texts: &[String]) -> Result<
                 m.entry(n).or_insert_with(Vec::new).push(i);
                 m
             });
-        let version = crate::query::Version::load(reader, table, head, false)?;
-        version.for_each_row(reader, |row| {
-            if let Some(slots) = wanted.get(&row.pos) {
+        // Ids do not change with fixes (a key column cannot be fixed): the raw extract's row
+        // map finds each position without reading the rows before it.
+        let version = crate::query::Version::load(reader, table, head, true)?;
+        for (&n, slots) in &wanted {
+            version.for_each_picked(reader, &crate::query::Pick::Positions(n, n), |row| {
                 for &i in slots {
                     out[i] = Some(row.id.clone());
                 }
-            }
-            Ok(std::ops::ControlFlow::Continue(()))
-        })?;
+                Ok(std::ops::ControlFlow::Break(()))
+            })?;
+        }
     }
     out.into_iter()
         .zip(texts)

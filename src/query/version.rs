@@ -5,10 +5,10 @@ use super::commits::ingest_record;
 use crate::error::{Error, Result};
 use crate::hash::VersionHash;
 use crate::model::{IngestRecord, RowId};
+use crate::store::ChunkCache;
 use crate::store::Reader;
 use crate::table::csv::{CsvReader, RawRecord, ReadError};
-use crate::store::ChunkCache;
-use crate::table::{RowIdBuilder, VersionHashBuilder, decode_into, key_hash};
+use crate::table::{RowIdBuilder, RowMapBuilder, VersionHashBuilder, decode_into, key_hash};
 use std::collections::{HashMap, HashSet};
 use std::ops::ControlFlow;
 
@@ -183,9 +183,8 @@ impl Version {
         let Some(map) = reader.row_map(self.ingest_seq)? else {
             return self.pick_by_scan(reader, pick, f);
         };
-        let damaged = |e: String| {
-            Error::Tampered(format!("the row map of commit {}: {e}", self.ingest_seq))
-        };
+        let damaged =
+            |e: String| Error::Tampered(format!("the row map of commit {}: {e}", self.ingest_seq));
         // The groups to read, and what to take from them.
         let mut groups: Vec<u32> = Vec::new();
         let (lo, hi, wanted): (u64, u64, Option<HashSet<&str>>) = match pick {
@@ -203,8 +202,10 @@ impl Version {
             }
             Pick::Ids(ids) if !map.is_keyed() => {
                 // Rows of a table without a key are named by position.
-                let mut positions: Vec<u64> =
-                    ids.iter().filter_map(|id| id.as_str().parse().ok()).collect();
+                let mut positions: Vec<u64> = ids
+                    .iter()
+                    .filter_map(|id| id.as_str().parse().ok())
+                    .collect();
                 positions.sort_unstable();
                 positions.dedup();
                 for p in &positions {
@@ -212,7 +213,11 @@ impl Version {
                         groups.push(g);
                     }
                 }
-                (1, u64::MAX, Some(ids.iter().map(|id| id.as_str()).collect()))
+                (
+                    1,
+                    u64::MAX,
+                    Some(ids.iter().map(|id| id.as_str()).collect()),
+                )
             }
             Pick::Ids(ids) => {
                 for id in ids.iter() {
@@ -221,7 +226,11 @@ impl Version {
                             .map_err(damaged)?,
                     );
                 }
-                (1, u64::MAX, Some(ids.iter().map(|id| id.as_str()).collect()))
+                (
+                    1,
+                    u64::MAX,
+                    Some(ids.iter().map(|id| id.as_str()).collect()),
+                )
             }
         };
         groups.sort_unstable();
@@ -237,11 +246,13 @@ impl Version {
                 if row.pos > hi {
                     return Ok(ControlFlow::Break(()));
                 }
-                let take = row.pos >= lo
-                    && wanted
-                        .as_ref()
-                        .is_none_or(|w| w.contains(row.id.as_str()));
-                if take { f(row) } else { Ok(ControlFlow::Continue(())) }
+                let take =
+                    row.pos >= lo && wanted.as_ref().is_none_or(|w| w.contains(row.id.as_str()));
+                if take {
+                    f(row)
+                } else {
+                    Ok(ControlFlow::Continue(()))
+                }
             })?;
             if flow.is_break() && !matches!(pick, Pick::Ids(_)) {
                 break;
@@ -368,6 +379,48 @@ impl Version {
             }
         }
         Ok(ControlFlow::Continue(()))
+    }
+
+    /// The row map of this version's extract, rebuilt from its bytes exactly as ingest built
+    /// it, for `verify` to compare with the stored one.
+    pub fn rebuild_row_map(&self, reader: &Reader<'_>) -> Result<Vec<u8>> {
+        let blob = reader.open_blob(&self.def.extract)?;
+        let mut csv = CsvReader::new(blob, self.def.dialect.delimiter).unlimited();
+        let mut rec = RawRecord::default();
+        self.read_stored(&mut csv, &mut rec)?;
+        let n_cols = self.def.header.len();
+        let key_idx: Vec<usize> = self
+            .def
+            .key
+            .iter()
+            .map(|k| self.col_idx(k))
+            .collect::<Result<_>>()?;
+        let row_ids = RowIdBuilder::new(key_idx.clone());
+        let mut map = RowMapBuilder::new(!key_idx.is_empty());
+        let mut text: Vec<String> = vec![String::new(); n_cols];
+        let mut id = String::new();
+        let mut pos = 0u64;
+        while self.read_stored(&mut csv, &mut rec)? {
+            if rec.is_blank_line() && n_cols > 1 {
+                continue;
+            }
+            pos += 1;
+            let mut h = 0;
+            if !key_idx.is_empty() {
+                for &k in &key_idx {
+                    decode_into(
+                        rec.get(k).unwrap_or_default(),
+                        self.def.dialect.encoding,
+                        &mut text[k],
+                    )
+                    .map_err(|_| Error::Corrupt(format!("bad text at line {}", rec.line)))?;
+                }
+                row_ids.build_into(pos, &text, &mut id);
+                h = key_hash(id.as_bytes());
+            }
+            map.row(pos, rec.offset, rec.line, h);
+        }
+        Ok(map.finish(csv.offset()))
     }
 
     /// The canonical hash of this version and its row count.

@@ -1,9 +1,11 @@
-//! The index rows derived from commit bodies: cell edits and marks (exclusions, distrust), as
-//! written with each commit and as `verify` recomputes them from the bodies.
+//! The index rows derived from commit bodies: extracts, marks (exclusions, distrust, kept values,
+//! notes, withdrawals), table versions and tags, as written with each commit and as `verify`
+//! recomputes them from the bodies. Cell edits have no index rows: the signed bodies, whose
+//! cells are packed, are read for them (`Reader::cell_edits`).
 
 use crate::model::{Change, CommitBody};
 
-/// One row of the cell-edit index.
+/// One cell edit as readers get it: from the fix record of a signed body.
 #[derive(Debug, Clone, PartialEq, Eq, PartialOrd, Ord)]
 pub struct CellEditRow {
     /// Table.
@@ -42,8 +44,6 @@ pub struct MarkRow {
 pub struct IndexRows {
     /// extract_index rows: (table, seq, extract).
     pub extracts: Vec<(String, u64, [u8; 32])>,
-    /// cell_edit rows.
-    pub cells: Vec<CellEditRow>,
     /// mark rows.
     pub marks: Vec<MarkRow>,
     /// version_index rows: (table, seq, hash, n_rows).
@@ -72,17 +72,6 @@ impl IndexRows {
             Change::Fixes(records) => {
                 for (fix_idx, rec) in records.iter().enumerate() {
                     let table = &rec.fix.table;
-                    for e in &rec.edits {
-                        self.cells.push(CellEditRow {
-                            table: table.clone(),
-                            row: e.row.0.clone(),
-                            column: e.column.clone(),
-                            seq,
-                            fix_idx: fix_idx as u64,
-                            old: e.old.clone(),
-                            new: e.new.clone(),
-                        });
-                    }
                     // Fixes that choose rows mark each row they chose (a kept value or a note
                     // on a cell marks the cell: row, separator, column).
                     let chosen = match &rec.fix.action {
@@ -148,7 +137,6 @@ impl IndexRows {
     /// Sort every list, so two sets of rows compare equal regardless of order.
     pub fn sort(&mut self) {
         self.extracts.sort();
-        self.cells.sort();
         self.marks.sort();
         self.versions.sort();
         self.tags.sort();

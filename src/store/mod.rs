@@ -65,8 +65,11 @@ const MIGRATIONS: &[&str] = &[
         conflict BLOB NOT NULL,
         added_at TEXT NOT NULL
     ) STRICT;",
-    // 3 → 4: row maps of extracts (extracts ingested before have none, and are read in full).
-    "CREATE TABLE row_map (
+    // 3 → 4: row maps of extracts (extracts ingested before have none, and are read in full);
+    // cell edits are read from the signed bodies, so their index table goes.
+    "DROP INDEX IF EXISTS cell_edit_by_seq;
+    DROP TABLE IF EXISTS cell_edit;
+    CREATE TABLE row_map (
         seq  INTEGER PRIMARY KEY REFERENCES commit_log(seq),
         data BLOB NOT NULL
     ) STRICT;",
@@ -592,7 +595,7 @@ mod tests {
                  ) STRICT, WITHOUT ROWID;
                  DROP TABLE signer;
                  CREATE TABLE signer (key BLOB PRIMARY KEY, name TEXT NOT NULL, email TEXT, added_at TEXT NOT NULL) STRICT;
-                 DROP TABLE open_conflict; DROP TABLE pending; CREATE TABLE pending (id INTEGER PRIMARY KEY AUTOINCREMENT, tbl TEXT NOT NULL, fix BLOB NOT NULL, note TEXT, added_at TEXT NOT NULL) STRICT;
+                 DROP TABLE row_map; DROP TABLE open_conflict; DROP TABLE pending; CREATE TABLE pending (id INTEGER PRIMARY KEY AUTOINCREMENT, tbl TEXT NOT NULL, fix BLOB NOT NULL, note TEXT, added_at TEXT NOT NULL) STRICT;
                  INSERT INTO commit_log (seq, id, body, signature) VALUES (1, x'00', x'00', x'00');
                  INSERT INTO mark VALUES ('samples', 'exclude', 'S-1', 1, 0);
                  PRAGMA user_version = 1;",

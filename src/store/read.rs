@@ -1,4 +1,4 @@
-//! Every read query: commits, extracts, the cell-edit and mark indexes, tags, pending fixes,
+//! Every read query: commits, extracts, cell edits (from the bodies), the mark index, tags, pending fixes,
 //! signers, chunks and stored files. [`Reader`] works both on an open store and inside a write
 //! transaction.
 
@@ -196,24 +196,56 @@ impl<'a> Reader<'a> {
         Ok(out)
     }
 
-    /// Cell edits of `table` with `after < seq <= upto`, in the order they were made.
+    /// Cell edits of `table` with `after < seq <= upto`, in the order they were made. The
+    /// signed bodies are the index: the commits that changed the table are found by the
+    /// version index, and their cells unpacked.
     pub fn cell_edits(&self, table: &str, after: u64, upto: u64) -> Result<Vec<CellEditRow>> {
+        self.edits_where(table, after, upto, |_| true)
+    }
+
+    /// The cell edits of `table`'s fix commits in `after < seq <= upto` that `keep` accepts,
+    /// in the order they were made.
+    fn edits_where(
+        &self,
+        table: &str,
+        after: u64,
+        upto: u64,
+        keep: impl Fn(&crate::model::CellEdit) -> bool,
+    ) -> Result<Vec<CellEditRow>> {
         let mut stmt = self.conn.prepare_cached(
-            "SELECT row_id, col, seq, fix_idx, old, new FROM cell_edit
-             WHERE tbl = ?1 AND seq > ?2 AND seq <= ?3 ORDER BY seq, fix_idx",
+            "SELECT c.seq, c.body FROM commit_log c JOIN version_index v ON v.seq = c.seq
+             WHERE v.tbl = ?1 AND c.seq > ?2 AND c.seq <= ?3 ORDER BY c.seq",
         )?;
         let rows = stmt.query_map(params![table, sq(after), sq(upto)], |r| {
-            Ok(CellEditRow {
-                table: table.to_string(),
-                row: r.get(0)?,
-                column: r.get(1)?,
-                seq: r.get::<_, i64>(2)? as u64,
-                fix_idx: r.get::<_, i64>(3)? as u64,
-                old: r.get(4)?,
-                new: r.get(5)?,
-            })
+            Ok((r.get::<_, i64>(0)? as u64, r.get::<_, Vec<u8>>(1)?))
         })?;
-        Ok(rows.collect::<rusqlite::Result<_>>()?)
+        let mut out = Vec::new();
+        for row in rows {
+            let (seq, bytes) = row?;
+            let body = crate::model::CommitBody::decode(&bytes).map_err(|e| {
+                Error::Tampered(format!("commit {seq}'s body does not decode ({e})"))
+            })?;
+            let crate::model::Change::Fixes(records) = body.change else {
+                continue;
+            };
+            for (fix_idx, rec) in records.into_iter().enumerate() {
+                if rec.fix.table != table {
+                    continue;
+                }
+                for e in rec.edits.into_iter().filter(|e| keep(e)) {
+                    out.push(CellEditRow {
+                        table: table.to_string(),
+                        row: e.row.0,
+                        column: e.column,
+                        seq,
+                        fix_idx: fix_idx as u64,
+                        old: e.old,
+                        new: e.new,
+                    });
+                }
+            }
+        }
+        Ok(out)
     }
 
     /// Marks of `table` with `after < seq <= upto`, leaving out the marks of fixes withdrawn
@@ -238,29 +270,6 @@ impl<'a> Reader<'a> {
         Ok(rows.collect::<rusqlite::Result<_>>()?)
     }
 
-    /// Every derived index row, sorted.
-    pub fn index_rows(&self) -> Result<IndexRows> {
-        let mut out = self.index_rows_but_cells()?;
-        let mut stmt = self
-            .conn
-            .prepare("SELECT tbl, row_id, col, seq, fix_idx, old, new FROM cell_edit")?;
-        for row in stmt.query_map([], |r| {
-            Ok(CellEditRow {
-                table: r.get(0)?,
-                row: r.get(1)?,
-                column: r.get(2)?,
-                seq: r.get::<_, i64>(3)? as u64,
-                fix_idx: r.get::<_, i64>(4)? as u64,
-                old: r.get(5)?,
-                new: r.get(6)?,
-            })
-        })? {
-            out.cells.push(row?);
-        }
-        out.sort();
-        Ok(out)
-    }
-
     /// The version hash and row count last recorded for `table` at or before commit `upto`.
     pub fn recorded_version(
         &self,
@@ -280,16 +289,8 @@ impl<'a> Reader<'a> {
             .map(|(h, n)| (crate::hash::VersionHash::from_bytes(h), n)))
     }
 
-    /// How many cell-edit index rows there are.
-    pub fn count_cell_edits(&self) -> Result<u64> {
-        Ok(self
-            .conn
-            .query_row("SELECT count(*) FROM cell_edit", [], |r| r.get::<_, i64>(0))?
-            as u64)
-    }
-
-    /// Every derived index row but the cell edits (which can be many), sorted.
-    pub fn index_rows_but_cells(&self) -> Result<IndexRows> {
+    /// Every derived index row, sorted.
+    pub fn index_rows(&self) -> Result<IndexRows> {
         let mut out = IndexRows::default();
         let mut stmt = self
             .conn
@@ -375,15 +376,7 @@ impl<'a> Reader<'a> {
         after: u64,
         upto: u64,
     ) -> Result<Vec<CellEditRow>> {
-        let mut stmt = self.conn.prepare_cached(
-            "SELECT col, seq, fix_idx, old, new FROM cell_edit
-             WHERE tbl = ?1 AND row_id = ?2 AND col = ?3 AND seq > ?4 AND seq <= ?5
-             ORDER BY seq, fix_idx",
-        )?;
-        let rows = stmt.query_map(params![table, row, column, sq(after), sq(upto)], |r| {
-            cell_edit_row(table, row, r)
-        })?;
-        Ok(rows.collect::<rusqlite::Result<_>>()?)
+        self.edits_where(table, after, upto, |e| e.row.0 == row && e.column == column)
     }
 
     /// Edits of every cell of one row with `after < seq <= upto`, oldest first.
@@ -394,15 +387,7 @@ impl<'a> Reader<'a> {
         after: u64,
         upto: u64,
     ) -> Result<Vec<CellEditRow>> {
-        let mut stmt = self.conn.prepare_cached(
-            "SELECT col, seq, fix_idx, old, new FROM cell_edit
-             WHERE tbl = ?1 AND row_id = ?2 AND seq > ?3 AND seq <= ?4
-             ORDER BY seq, fix_idx",
-        )?;
-        let rows = stmt.query_map(params![table, row, sq(after), sq(upto)], |r| {
-            cell_edit_row(table, row, r)
-        })?;
-        Ok(rows.collect::<rusqlite::Result<_>>()?)
+        self.edits_where(table, after, upto, |e| e.row.0 == row)
     }
 
     /// Marks naming one target (a row id or a column) with `after < seq <= upto`, leaving out
@@ -791,13 +776,9 @@ impl<'a> Reader<'a> {
         if exists.is_none() {
             return Ok(None);
         }
-        let blob = self.conn.blob_open(
-            rusqlite::MAIN_DB,
-            "row_map",
-            "data",
-            sq(seq),
-            true,
-        )?;
+        let blob = self
+            .conn
+            .blob_open(rusqlite::MAIN_DB, "row_map", "data", sq(seq), true)?;
         RowMap::open(StoredMap(blob))
             .map(Some)
             .map_err(|e| Error::Tampered(format!("the row map of commit {seq}: {e}")))
@@ -839,7 +820,10 @@ pub struct StoredMap<'a>(rusqlite::blob::Blob<'a>);
 impl MapBytes for StoredMap<'_> {
     fn read_at(&self, at: u64, buf: &mut [u8]) -> std::result::Result<(), String> {
         let at = usize::try_from(at).map_err(|_| "offset out of range".to_string())?;
-        if at.checked_add(buf.len()).is_none_or(|end| end > self.0.len()) {
+        if at
+            .checked_add(buf.len())
+            .is_none_or(|end| end > self.0.len())
+        {
             return Err(format!("the row map ends before byte {}", at + buf.len()));
         }
         self.0.read_at_exact(buf, at).map_err(|e| e.to_string())
@@ -863,18 +847,6 @@ pub(super) fn blob32(r: &rusqlite::Row<'_>, idx: usize) -> rusqlite::Result<[u8;
             rusqlite::types::Type::Blob,
             format!("expected 32 bytes, found {}", v.len()).into(),
         )
-    })
-}
-
-fn cell_edit_row(table: &str, row: &str, r: &rusqlite::Row<'_>) -> rusqlite::Result<CellEditRow> {
-    Ok(CellEditRow {
-        table: table.to_string(),
-        row: row.to_string(),
-        column: r.get(0)?,
-        seq: r.get::<_, i64>(1)? as u64,
-        fix_idx: r.get::<_, i64>(2)? as u64,
-        old: r.get(3)?,
-        new: r.get(4)?,
     })
 }
 

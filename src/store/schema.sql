@@ -1,7 +1,8 @@
 -- emend store schema, version 4 (PRAGMA user_version = 4).
 -- Objects (chunk, blob, blob_chunk, commit_log) are append-only: triggers refuse updates and
--- deletes. Index tables (cell_edit, mark, version_index, extract_index) are derived from commit
--- bodies inside the same transaction as the commit, and `verify` checks them against the bodies.
+-- deletes. Index tables (mark, version_index, extract_index, tag, row_map) are derived from commit
+-- bodies (and extracts) inside the same transaction as the commit, and `verify` checks them.
+-- Cell edits have no index table: they are read from the bodies, where they are packed.
 
 CREATE TABLE store_meta (
     name  TEXT PRIMARY KEY,
@@ -97,19 +98,6 @@ CREATE TABLE row_map (
     seq  INTEGER PRIMARY KEY REFERENCES commit_log(seq),
     data BLOB NOT NULL
 ) STRICT;
-
--- Derived: one row per cell edit in a fix commit.
-CREATE TABLE cell_edit (
-    tbl     TEXT NOT NULL,
-    row_id  TEXT NOT NULL,
-    col     TEXT NOT NULL,
-    seq     INTEGER NOT NULL REFERENCES commit_log(seq),
-    fix_idx INTEGER NOT NULL,
-    old     TEXT,
-    new     TEXT,
-    PRIMARY KEY (tbl, row_id, col, seq, fix_idx)
-) STRICT, WITHOUT ROWID;
-CREATE INDEX cell_edit_by_seq ON cell_edit (tbl, seq);
 
 -- Derived: row exclusions and column distrust.
 CREATE TABLE mark (

@@ -85,7 +85,7 @@ fn is_internal(kind: &str, name: &str) -> bool {
 }
 
 /// Every schema object in the store that this build did not create, or that differs from what
-/// it creates, each named (`trigger pending_rewrite`, `table cell_edit (its columns differ)`).
+/// it creates, each named (`trigger pending_rewrite`, `table mark (its columns differ)`).
 /// With `only_code`, only triggers and views are compared: what runs or stands in for a table,
 /// checked before an older schema is migrated (the tables of older schemas differ).
 pub(crate) fn foreign_objects(conn: &Connection, only_code: bool) -> Result<Vec<String>> {
@@ -135,7 +135,7 @@ mod tests {
         conn.execute_batch(
             "CREATE TRIGGER rewrite AFTER INSERT ON pending BEGIN UPDATE pending SET note = 'x'; END;
              CREATE VIEW peek AS SELECT * FROM commit_log;
-             CREATE INDEX extra ON cell_edit (new);
+             CREATE INDEX extra ON mark (target);
              ALTER TABLE store_meta ADD COLUMN planted TEXT;",
         )
         .unwrap();

@@ -102,21 +102,6 @@ impl WriteTx<'_> {
                 params![tbl, *seq as i64, extract],
             )?;
         }
-        let mut stmt = self.tx.prepare_cached(
-            "INSERT INTO cell_edit (tbl, row_id, col, seq, fix_idx, old, new)
-             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
-        )?;
-        for c in &rows.cells {
-            stmt.execute(params![
-                c.table,
-                c.row,
-                c.column,
-                c.seq as i64,
-                c.fix_idx as i64,
-                c.old,
-                c.new
-            ])?;
-        }
         for m in &rows.marks {
             self.tx.execute(
                 "INSERT INTO mark (tbl, kind, target, seq, fix_idx) VALUES (?1, ?2, ?3, ?4, ?5)",

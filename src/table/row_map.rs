@@ -176,7 +176,11 @@ impl RowMapBuilder {
 
 /// Bits needed to number `n` things (0 for one or none).
 fn bits_for(n: u64) -> u32 {
-    if n <= 1 { 0 } else { 64 - (n - 1).leading_zeros() }
+    if n <= 1 {
+        0
+    } else {
+        64 - (n - 1).leading_zeros()
+    }
 }
 
 #[derive(Default)]
@@ -345,7 +349,10 @@ impl<B: MapBytes> RowMap<B> {
         let (mut lo, mut hi) = (0u32, self.n_groups);
         while hi - lo > 1 {
             let mid = lo + (hi - lo) / 2;
-            let first = u64_at(&self.bytes, HEAD as u64 + u64::from(mid) * GROUP_ENTRY as u64)?;
+            let first = u64_at(
+                &self.bytes,
+                HEAD as u64 + u64::from(mid) * GROUP_ENTRY as u64,
+            )?;
             if first <= pos {
                 lo = mid;
             } else {

@@ -3,7 +3,7 @@
 //! (after dropping the immutability triggers), and expects `verify` to exit 1 and name the
 //! object.
 //!
-//! Cases tried: 22. Caught: 22 (each by the object named in the case).
+//! Cases tried: 23. Caught: 23 (each by the object named in the case).
 
 use crate::util::{TestDir, open_db, setup_store};
 use crate::walkthrough::{LAB_SHEET, RIVER_CSV};
@@ -326,39 +326,15 @@ fn cases() -> Vec<(&'static str, Tamper, Vec<String>)> {
             vec!["commit 2".into(), "commit 3".into()],
         ),
         (
-            "cell_edit index: a new value changed",
+            "a table of forged cell edits planted beside the bodies (emend keeps none)",
             |c| {
-                let n = c
-                    .execute(
-                        "UPDATE cell_edit SET new = '7.2' WHERE row_id = 'RW-002' AND col = 'ph'",
-                        [],
-                    )
-                    .unwrap();
-                assert_eq!(n, 1);
-            },
-            vec!["cell_edit index".into(), "commit 2".into()],
-        ),
-        (
-            "cell_edit index: a row deleted",
-            |c| {
-                let n = c
-                    .execute("DELETE FROM cell_edit WHERE row_id = 'RW-007'", [])
-                    .unwrap();
-                assert_eq!(n, 1);
-            },
-            vec!["cell_edit index".into()],
-        ),
-        (
-            "cell_edit index: a row added",
-            |c| {
-                c.execute(
-                    "INSERT INTO cell_edit (tbl, row_id, col, seq, fix_idx, old, new)
-                     VALUES ('samples', 'RW-001', 'ph', 3, 0, '7.2', '9.9')",
-                    [],
+                c.execute_batch(
+                    "CREATE TABLE cell_edit (tbl TEXT, row_id TEXT, col TEXT, new TEXT);
+                     INSERT INTO cell_edit VALUES ('samples', 'RW-002', 'ph', '9.9');",
                 )
                 .unwrap();
             },
-            vec!["cell_edit index".into()],
+            vec!["store file".into()],
         ),
         (
             "mark index: an exclusion moved to another row",
@@ -426,6 +402,44 @@ fn cases() -> Vec<(&'static str, Tamper, Vec<String>)> {
                 .unwrap();
             },
             vec!["commit 2".into(), "commit 3".into()],
+        ),
+        (
+            "row map: the offset of its first group of rows moved",
+            |c| {
+                let mut data: Vec<u8> = c
+                    .query_row("SELECT data FROM row_map WHERE seq = 1", [], |r| r.get(0))
+                    .unwrap();
+                // Layout (src/table/row_map.rs): a 28-byte head, then per group its first
+                // position, offset and line; the first group's offset is bytes 36..44.
+                data[36] = data[36].wrapping_add(9);
+                c.execute("UPDATE row_map SET data = ?1 WHERE seq = 1", params![data])
+                    .unwrap();
+            },
+            vec!["row map of commit 1".into()],
+        ),
+        (
+            "row map: one key entry's bits flipped",
+            |c| {
+                let mut data: Vec<u8> = c
+                    .query_row("SELECT data FROM row_map WHERE seq = 1", [], |r| r.get(0))
+                    .unwrap();
+                let at = data.len() - 10;
+                data[at] ^= 0xff;
+                c.execute("UPDATE row_map SET data = ?1 WHERE seq = 1", params![data])
+                    .unwrap();
+            },
+            vec!["row map of commit 1".into()],
+        ),
+        (
+            "row map: one added for a commit that adds no extract",
+            |c| {
+                c.execute(
+                    "INSERT INTO row_map (seq, data) SELECT 2, data FROM row_map WHERE seq = 1",
+                    [],
+                )
+                .unwrap();
+            },
+            vec!["row map of commit 2".into()],
         ),
     ]
 }
@@ -501,7 +515,7 @@ fn deleting_the_newest_commit_leaves_index_rows_that_verify_reports() {
         .iter()
         .map(|p| p["object"].as_str().unwrap())
         .collect();
-    for o in ["cell_edit index", "mark index", "version index"] {
+    for o in ["mark index", "version index"] {
         assert!(objects.contains(&o), "{o} in {objects:?}");
     }
 }
@@ -524,4 +538,43 @@ fn the_triggers_refuse_plain_updates() {
         let err = c.execute(sql, []).unwrap_err();
         assert!(err.to_string().contains("immutable"), "{sql}: {err}");
     }
+}
+
+#[test]
+fn a_damaged_row_map_finds_no_row_rather_than_a_wrong_one() {
+    let template = template();
+    let dir = TestDir::new("tamper_row_map_lookup");
+    dir.copy_from(&template);
+    let shown = dir.cmd(["show", "samples", "RW-005", "--json"]).ok().json();
+    assert_eq!(shown["rows"][0]["row"], "RW-005");
+    {
+        let c = open_db(&dir);
+        let mut data: Vec<u8> = c
+            .query_row("SELECT data FROM row_map WHERE seq = 1", [], |r| r.get(0))
+            .unwrap();
+        // Move the first group's offset (bytes 36..44) to the start of the second row: the
+        // group then begins one row late, and its rows are numbered one too low.
+        let second = RIVER_CSV.find("\nRW-002").unwrap() as u64 + 1;
+        data[36..44].copy_from_slice(&second.to_le_bytes());
+        c.execute("UPDATE row_map SET data = ?1 WHERE seq = 1", params![data])
+            .unwrap();
+    }
+    // Every row still shown is the row asked for, with its own values (or none is shown).
+    for key in ["RW-001", "RW-004", "RW-007"] {
+        let out = dir.cmd(["show", "samples", key, "--json"]);
+        if out.status.success() {
+            let v = out.json();
+            assert_eq!(v["rows"][0]["row"], key);
+            assert_eq!(v["rows"][0]["cells"][0], key);
+        }
+    }
+    let v = dir.cmd(["verify", "--json"]).code(1).json();
+    assert!(
+        v["problems"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|p| p["object"] == "row map of commit 1"),
+        "{v}"
+    );
 }

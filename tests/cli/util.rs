@@ -330,7 +330,7 @@ pub fn store_state(dir: &TestDir) -> StoreState {
         "blob",
         "blob_chunk",
         "pending",
-        "cell_edit",
+        "row_map",
         "mark",
         "version_index",
         "extract_index",
