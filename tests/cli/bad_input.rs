@@ -488,7 +488,7 @@ fn a_store_from_a_newer_build_is_refused() {
         &["exclude", "samples", "RW-1", "--why", "w"],
     ] {
         dir.cmd(args)
-            .fails(&["schema v99", "reads up to v3", "upgrade emend"]);
+            .fails(&["schema v99", "reads up to v4", "upgrade emend"]);
     }
     assert_eq!(dir.read(".emend/store.sqlite"), bytes);
 }
