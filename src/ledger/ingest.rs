@@ -106,7 +106,7 @@ pub fn ingest_input(
         Change::Ingest(outcome.record.clone()),
         versions,
     )?;
-    tx.put_row_map(done.seq, &std::mem::take(&mut outcome.row_map))?;
+    tx.put_row_map(&opts.table, done.seq, &std::mem::take(&mut outcome.row_map))?;
     tx.commit()?;
     Ok((done, outcome))
 }

@@ -590,20 +590,40 @@ impl CommitBody {
 
     /// Decode canonical bytes of any format this build knows.
     pub fn decode(bytes: &[u8]) -> crate::Result<Self> {
-        Self::decode_with(bytes, true)
+        Self::decode_with(bytes, Some(&|_, _| true))
     }
 
     /// Decode a body without unpacking the cells its fixes changed (their `edits` come back
     /// empty for format 2 bodies): for readers of the chain, the fixes and the marks only.
     pub fn decode_without_cells(bytes: &[u8]) -> crate::Result<Self> {
-        Self::decode_with(bytes, false)
+        Self::decode_with(bytes, None)
     }
 
-    fn decode_with(bytes: &[u8], cells: bool) -> crate::Result<Self> {
+    /// Decode a body keeping only the cell edits whose (row id, column) `keep` accepts: for a
+    /// reader after one cell or row of fixes that changed many.
+    pub fn decode_cells_where(
+        bytes: &[u8],
+        keep: &dyn Fn(&str, &str) -> bool,
+    ) -> crate::Result<Self> {
+        Self::decode_with(bytes, Some(keep))
+    }
+
+    fn decode_with(
+        bytes: &[u8],
+        cells: Option<&dyn Fn(&str, &str) -> bool>,
+    ) -> crate::Result<Self> {
         // Every format begins with its number.
         let (format, _) = postcard::take_from_bytes::<u32>(bytes)?;
         match format {
-            0 | 1 => Ok(postcard::from_bytes(bytes)?),
+            0 | 1 => {
+                let mut body: CommitBody = postcard::from_bytes(bytes)?;
+                if let (Some(keep), Change::Fixes(list)) = (cells, &mut body.change) {
+                    for r in list {
+                        r.edits.retain(|e| keep(&e.row.0, &e.column));
+                    }
+                }
+                Ok(body)
+            }
             2 => wire::decode_v2(bytes, cells),
             newer => Err(crate::Error::Corrupt(format!(
                 "a commit body is in format {newer}, newer than this build reads ({BODY_FORMAT}); use a newer emend"

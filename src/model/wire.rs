@@ -108,7 +108,25 @@ fn pack(edits: &[CellEdit]) -> Packed {
     }
 }
 
-fn unpack(p: &Packed) -> crate::Result<Vec<CellEdit>> {
+/// [`CellTable`] read in place, for a reader after a few cells of a large fix.
+#[derive(Deserialize)]
+struct CellTableRef<'a> {
+    #[serde(borrow)]
+    rows: Vec<&'a str>,
+    #[serde(borrow)]
+    columns: Vec<&'a str>,
+    #[serde(borrow)]
+    values: Vec<Option<&'a str>>,
+    row: Vec<u32>,
+    column: Vec<u32>,
+    old: Vec<u32>,
+    new: Vec<u32>,
+}
+
+/// The cells a filter on (row, column) keeps, without building the others.
+pub(super) type CellFilter<'f> = &'f dyn Fn(&str, &str) -> bool;
+
+fn unpack_where(p: &Packed, keep: CellFilter<'_>) -> crate::Result<Vec<CellEdit>> {
     let bad = |what: &str| crate::Error::Corrupt(format!("a commit body's packed cells {what}"));
     if p.unpacked_len > MAX_UNPACKED {
         return Err(bad("claim more than 1 GiB"));
@@ -118,7 +136,7 @@ fn unpack(p: &Packed) -> crate::Result<Vec<CellEdit>> {
     if bytes.len() as u64 != p.unpacked_len {
         return Err(bad("are not the length they claim"));
     }
-    let t: CellTable = postcard::from_bytes(&bytes).map_err(|_| bad("do not decode"))?;
+    let t: CellTableRef<'_> = postcard::from_bytes(&bytes).map_err(|_| bad("do not decode"))?;
     let n = t.row.len();
     if t.column.len() != n || t.old.len() != n || t.new.len() != n || n as u64 != p.n_cells {
         return Err(bad("have lists of different lengths"));
@@ -131,13 +149,30 @@ fn unpack(p: &Packed) -> crate::Result<Vec<CellEdit>> {
             Err(bad("point past their lists"))
         }
     };
-    let mut out = Vec::with_capacity(n);
+    // Which rows and columns the filter keeps, asked once per distinct name.
+    let row_kept: Vec<bool> = if t.columns.len() == 1 {
+        t.rows.iter().map(|r| keep(r, t.columns[0])).collect()
+    } else {
+        Vec::new()
+    };
+    let mut out = Vec::new();
     for k in 0..n {
+        let r = get(t.rows.len(), t.row[k])?;
+        let c = get(t.columns.len(), t.column[k])?;
+        let o = get(t.values.len(), t.old[k])?;
+        let v = get(t.values.len(), t.new[k])?;
+        let kept = match row_kept.get(r) {
+            Some(&k) => k,
+            None => keep(t.rows[r], t.columns[c]),
+        };
+        if !kept {
+            continue;
+        }
         out.push(CellEdit {
-            row: RowId(t.rows[get(t.rows.len(), t.row[k])?].clone()),
-            column: t.columns[get(t.columns.len(), t.column[k])?].clone(),
-            old: t.values[get(t.values.len(), t.old[k])?].clone(),
-            new: t.values[get(t.values.len(), t.new[k])?].clone(),
+            row: RowId(t.rows[r].to_string()),
+            column: t.columns[c].to_string(),
+            old: t.values[o].map(str::to_string),
+            new: t.values[v].map(str::to_string),
         });
     }
     Ok(out)
@@ -172,9 +207,10 @@ pub(super) fn encode_v2(b: &CommitBody) -> Vec<u8> {
     postcard::to_stdvec(&wire).expect("commit bodies hold only serialisable plain data")
 }
 
-/// Decode a format 2 body; with `cells` false the fix records come back with no cell edits
-/// (for readers that need only the chain and the fixes, which then skip decompression).
-pub(super) fn decode_v2(bytes: &[u8], cells: bool) -> crate::Result<CommitBody> {
+/// Decode a format 2 body, keeping the cell edits `cells` accepts; with none the fix records
+/// come back with no cell edits (for readers that need only the chain and the fixes, which
+/// then skip decompression).
+pub(super) fn decode_v2(bytes: &[u8], cells: Option<CellFilter<'_>>) -> crate::Result<CommitBody> {
     let w: BodyV2 = postcard::from_bytes(bytes)?;
     let change = match w.change {
         ChangeV2::Ingest(r) => Change::Ingest(r),
@@ -182,7 +218,10 @@ pub(super) fn decode_v2(bytes: &[u8], cells: bool) -> crate::Result<CommitBody> 
             list.into_iter()
                 .map(|p| {
                     Ok(FixRecord {
-                        edits: if cells { unpack(&p.cells)? } else { Vec::new() },
+                        edits: match cells {
+                            Some(keep) => unpack_where(&p.cells, keep)?,
+                            None => Vec::new(),
+                        },
                         fix: p.fix,
                     })
                 })

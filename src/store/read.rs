@@ -200,7 +200,7 @@ impl<'a> Reader<'a> {
     /// signed bodies are the index: the commits that changed the table are found by the
     /// version index, and their cells unpacked.
     pub fn cell_edits(&self, table: &str, after: u64, upto: u64) -> Result<Vec<CellEditRow>> {
-        self.edits_where(table, after, upto, |_| true)
+        self.edits_where(table, after, upto, &|_, _| true)
     }
 
     /// The cell edits of `table`'s fix commits in `after < seq <= upto` that `keep` accepts,
@@ -210,7 +210,7 @@ impl<'a> Reader<'a> {
         table: &str,
         after: u64,
         upto: u64,
-        keep: impl Fn(&crate::model::CellEdit) -> bool,
+        keep: &dyn Fn(&str, &str) -> bool,
     ) -> Result<Vec<CellEditRow>> {
         let mut stmt = self.conn.prepare_cached(
             "SELECT c.seq, c.body FROM commit_log c JOIN version_index v ON v.seq = c.seq
@@ -222,7 +222,7 @@ impl<'a> Reader<'a> {
         let mut out = Vec::new();
         for row in rows {
             let (seq, bytes) = row?;
-            let body = crate::model::CommitBody::decode(&bytes).map_err(|e| {
+            let body = crate::model::CommitBody::decode_cells_where(&bytes, keep).map_err(|e| {
                 Error::Tampered(format!("commit {seq}'s body does not decode ({e})"))
             })?;
             let crate::model::Change::Fixes(records) = body.change else {
@@ -232,7 +232,7 @@ impl<'a> Reader<'a> {
                 if rec.fix.table != table {
                     continue;
                 }
-                for e in rec.edits.into_iter().filter(|e| keep(e)) {
+                for e in rec.edits {
                     out.push(CellEditRow {
                         table: table.to_string(),
                         row: e.row.0,
@@ -376,7 +376,7 @@ impl<'a> Reader<'a> {
         after: u64,
         upto: u64,
     ) -> Result<Vec<CellEditRow>> {
-        self.edits_where(table, after, upto, |e| e.row.0 == row && e.column == column)
+        self.edits_where(table, after, upto, &|r, c| r == row && c == column)
     }
 
     /// Edits of every cell of one row with `after < seq <= upto`, oldest first.
@@ -387,7 +387,7 @@ impl<'a> Reader<'a> {
         after: u64,
         upto: u64,
     ) -> Result<Vec<CellEditRow>> {
-        self.edits_where(table, after, upto, |e| e.row.0 == row)
+        self.edits_where(table, after, upto, &|r, _| r == row)
     }
 
     /// Marks naming one target (a row id or a column) with `after < seq <= upto`, leaving out

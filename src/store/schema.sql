@@ -93,7 +93,8 @@ CREATE TABLE extract_index (
 
 -- Derived: where each row of an ingest commit's extract starts, and which group of rows holds
 -- each key (src/table/row_map.rs), so a row is found without reading the table. Recomputed by
--- `verify` from the extract.
+-- `verify` from the extract. Only each table's newest extract keeps one; older ones are read in
+-- full.
 CREATE TABLE row_map (
     seq  INTEGER PRIMARY KEY REFERENCES commit_log(seq),
     data BLOB NOT NULL

@@ -74,8 +74,16 @@ impl WriteTx<'_> {
         Ok(())
     }
 
-    /// Keep the row map of the extract that ingest commit `seq` adds.
-    pub fn put_row_map(&self, seq: u64, map: &[u8]) -> Result<()> {
+    /// Keep the row map of the extract that ingest commit `seq` adds to `table`, in place of
+    /// the map of the table's earlier extract: the newest extract is the one looked up all day,
+    /// and a month's map costs as much as the month's whole delta, so older extracts are read
+    /// in full when asked for (their versions are rebuilt the same either way).
+    pub fn put_row_map(&self, table: &str, seq: u64, map: &[u8]) -> Result<()> {
+        self.tx.execute(
+            "DELETE FROM row_map WHERE seq IN
+                 (SELECT seq FROM extract_index WHERE tbl = ?1 AND seq < ?2)",
+            params![table, seq as i64],
+        )?;
         self.tx.execute(
             "INSERT INTO row_map (seq, data) VALUES (?1, ?2)",
             params![seq as i64, map],
