@@ -17,6 +17,7 @@ import random
 import shlex
 import shutil
 import statistics
+import sqlite3
 import subprocess
 import sys
 import tempfile
@@ -485,19 +486,25 @@ class Bench:
         # 5. export of a cleaned version -----------------------------------------------------
         log(f"[{lab}] 5 export")
         nfix = 2 * FIXES_PER_ROUND + WHY_COMMITS * WHY_FIXES
-        s_exp, s_raw = self.interleaved(
+        s_exp, s_raw, s_floor = self.interleaved(
             runs,
             [
                 (f"emend export s (latest, {nfix:,} fixes)", None,
                  e(f"export s -o {q(w / 'out.csv')}"), he, ""),
                 ("emend export s --at raw", None,
                  e(f"export s --at raw -o {q(w / 'raw.csv')}"), he, ""),
+                ("plain CSV parse + write in Rust (csv crate: examples/csv_floor.rs)", None,
+                 f"{q(self.tools['csv_floor'])} {q(src)} {q(w / 'floor.csv')}", w, ""),
             ],
         )
         t.row("5", "export of a cleaned version", s_exp)
         t.row("5", "export of a cleaned version", s_raw,
               within(s_exp, s_raw, "latest", "raw", 1.5))
-        for f in ("out.csv", "raw.csv"):
+        floor_r = s_exp.median / s_floor.median if s_floor.median > 0 else float("inf")
+        t.row("5", "export of a cleaned version", s_floor,
+              f"latest {fmt_s(s_exp.median)} vs the parse-and-write floor {fmt_s(s_floor.median)} "
+              f"= {floor_r:.2f}× the time (no target: the floor bounds what export can reach)")
+        for f in ("out.csv", "raw.csv", "floor.csv"):
             (w / f).unlink(missing_ok=True)
         shutil.rmtree(he)
 
@@ -612,6 +619,63 @@ class Bench:
                      + ", ".join(f"{b / 1048576:.1f}" for b in trace))
         return t.text() + "\n\n" + "\n".join(lines)
 
+    # Lookups by key and position (issue 17) ---------------------------------------------------
+    def lookups(self, rows: int) -> str:
+        """Latency of the everyday one-row commands through the row map, against the same store
+        with its row map removed (how every command found a row before: reading the table)."""
+        run, e, runs = self.run, self.run.e, self.args.runs
+        w = fresh_dir(run.work / f"look{rows}")
+        lab = size_label(rows)
+        src = w / f"samples_{lab}.csv"
+        log(f"[lookups {lab}] generating {rows} rows")
+        run.sh(f"{q(self.tools['generate'])} --rows {rows} > {q(src)}", w)
+        mapped, scan = w / "mapped", w / "scan"
+        mapped.mkdir()
+        run.sh(e("init"), mapped)
+        s_ing = self.series("emend ingest --key sample_id", 1, None,
+                            e(f"ingest {q(src)} --table s --key sample_id"), mapped)
+        shutil.copytree(mapped, scan)
+        store = scan / ".emend" / "store.sqlite"
+        con = sqlite3.connect(store)
+        map_bytes = con.execute("SELECT COALESCE(SUM(LENGTH(data)), 0) FROM row_map").fetchone()[0]
+        chunk_bytes = con.execute("SELECT SUM(LENGTH(data)) FROM chunk").fetchone()[0]
+        con.execute("DELETE FROM row_map")
+        con.commit()
+        con.close()
+        src.unlink()
+        near_end = rows - 10
+        key = f"S-{near_end:05}"
+        commands = [
+            (f"show s {key}", f"show s {key}"),
+            (f"show s #{near_end}", f"show s '#{near_end}'"),
+            (f"show s --rows {near_end}-{near_end + 9}", f"show s --rows {near_end}-{near_end + 9}"),
+            (f"why s {key} ph", f"why s {key} ph"),
+            (f"set s {key} ph 7.1 (recorded, then discarded)", f"set s {key} ph 7.1 --why bench && {e('discard')}"),
+            (f"exclude s {key} (recorded, then discarded)", f"exclude s {key} --why bench && {e('discard')}"),
+        ]
+        t = Table()
+        t.row("L", "ingest (the row map is built here)", s_ing)
+        for label, args in commands:
+            cmd = e(args) + " > /dev/null"
+            s_map, s_scan = self.interleaved(
+                runs,
+                [
+                    (f"emend {label}, row map", None, cmd, mapped, ""),
+                    (f"emend {label}, whole-table read", None, cmd, scan, ""),
+                ],
+            )
+            t.row("L", label, s_map)
+            ok = "met" if s_map.median <= 0.05 else "not met"
+            t.row("L", label, s_scan,
+                  f"row map {fmt_s(s_map.median)} vs read {fmt_s(s_scan.median)} = "
+                  f"{s_scan.median / max(s_map.median, 1e-9):.0f}× faster (target ≤ 50 ms: {ok})")
+        shutil.rmtree(w)
+        head = f"### lookups at {lab} rows"
+        share = map_bytes / chunk_bytes if chunk_bytes else 0
+        size = (f"Row map: {map_bytes:,} bytes against {chunk_bytes:,} compressed bytes of the extract "
+                f"({100 * share:.1f}%; target ≤ 25%: {'met' if share <= 0.25 else 'not met'}).")
+        return "\n".join([head, "", t.text(), "", size])
+
     def flat_summary(self) -> str:
         out = []
         for key, name in (("diff", "3. emend diff"), ("why", "4. emend why")):
@@ -663,7 +727,8 @@ def build() -> dict:
         cwd=REPO, stdout=subprocess.PIPE, check=True,
     )
     target = Path(json.loads(meta.stdout)["target_directory"]) / "release"
-    tools = {"emend": target / "emend", "generate": target / "examples" / "generate"}
+    tools = {"emend": target / "emend", "generate": target / "examples" / "generate",
+             "csv_floor": target / "examples" / "csv_floor"}
     for k, v in tools.items():
         if not v.exists():
             raise BenchError(f"{k}: {v} not found after the build")
@@ -732,6 +797,8 @@ def main() -> int:
                     help="runs per measurement; the table shows the median (default 3; --quick: 1)")
     ap.add_argument("--quick", action="store_true",
                     help="smoke test: 100k rows, 1 run, git blame once (a few minutes)")
+    ap.add_argument("--lookups", type=lambda t: [] if t == "none" else parse_sizes(t), default=None,
+                    help="sizes for the one-row lookup rows (default 1m,10m; --quick: 100k; 'none')")
     ap.add_argument("--out", type=Path, help="also write the markdown report to this file")
     ap.add_argument("--keep", action="store_true", help="keep the work folder")
     ap.add_argument("--tmp", type=Path, default=None,
@@ -739,6 +806,8 @@ def main() -> int:
     args = ap.parse_args()
     if args.sizes is None:
         args.sizes = [100_000] if args.quick else [100_000, 1_000_000, 5_000_000]
+    if args.lookups is None:
+        args.lookups = [100_000] if args.quick else [1_000_000, 10_000_000]
     if args.runs is None:
         args.runs = 1 if args.quick else 3
     if args.runs < 1:
@@ -778,6 +847,10 @@ def main() -> int:
         for n in args.sizes:
             parts.append(bench.size(n))
             # Keep what is measured so far, so an interrupted long run still leaves its tables.
+            if args.out:
+                args.out.write_text("\n".join(header) + "\n" + "\n\n".join(parts) + "\n\n(partial)\n")
+        for n in args.lookups:
+            parts.append(bench.lookups(n))
             if args.out:
                 args.out.write_text("\n".join(header) + "\n" + "\n\n".join(parts) + "\n\n(partial)\n")
         flat = bench.flat_summary()
