@@ -7,6 +7,8 @@
 pub mod edit;
 mod wire;
 
+pub use wire::CellFilter;
+
 use crate::hash::{BlobId, CommitId, Digest, VersionHash};
 use edit::{Rows, Transform};
 use serde::{Deserialize, Serialize};
@@ -608,10 +610,7 @@ impl CommitBody {
         Self::decode_with(bytes, Some(keep))
     }
 
-    fn decode_with(
-        bytes: &[u8],
-        cells: Option<&dyn Fn(&str, &str) -> bool>,
-    ) -> crate::Result<Self> {
+    fn decode_with(bytes: &[u8], cells: Option<CellFilter<'_>>) -> crate::Result<Self> {
         // Every format begins with its number.
         let (format, _) = postcard::take_from_bytes::<u32>(bytes)?;
         match format {

@@ -124,7 +124,7 @@ struct CellTableRef<'a> {
 }
 
 /// The cells a filter on (row, column) keeps, without building the others.
-pub(super) type CellFilter<'f> = &'f dyn Fn(&str, &str) -> bool;
+pub type CellFilter<'f> = &'f dyn Fn(&str, &str) -> bool;
 
 fn unpack_where(p: &Packed, keep: CellFilter<'_>) -> crate::Result<Vec<CellEdit>> {
     let bad = |what: &str| crate::Error::Corrupt(format!("a commit body's packed cells {what}"));
