@@ -4,9 +4,11 @@
 //! a hashed struct is a `Vec` in a defined order, never a hash map, so the same body always gives
 //! the same bytes and so the same id.
 
+pub mod batch;
 pub mod edit;
 
 use crate::hash::{BlobId, CommitId, Digest, VersionHash};
+pub use batch::RowBatch;
 use edit::{Rows, Transform};
 use serde::{Deserialize, Serialize};
 use std::fmt;
