@@ -528,6 +528,7 @@ class Bench:
             t.row("6", "profile", s_prof)
             t.row("6", "profile", s_pd,
                   faster(s_prof, s_pd, "pandas", 3) + "; " + memory(s_prof, s_pd, "pandas", 1 / 3))
+        self.cores(t, lab, ing)
         shutil.rmtree(ing)
 
         # 7. store size for twelve monthly extracts ------------------------------------------
@@ -538,6 +539,35 @@ class Bench:
 
         head = f"### {lab} rows ({rows:,} rows, extract {fmt_mib(src_bytes)})"
         return "\n".join([head, "", t.text(), "", months])
+
+    # Issue 17, both cores: rows "cores" ------------------------------------------------------
+    def cores(self, t: Table, lab: str, ing: Path) -> None:
+        """profile and check with one thread (EMEND_THREADS=1) and with the default (one per
+        core), alternating, on the keyed store of row 6; check runs demo/rules.toml adopted."""
+        run, e, runs = self.run, self.run.e, self.args.runs
+        log(f"[{lab}] cores: profile and check on one thread and on every core")
+        run.sh(e(f"rules s {q(REPO / 'demo' / 'rules.toml')} --why bench"), ing)
+        # check exits 1 when a rule is broken, which the generated data does on purpose.
+        chk = e("check s --json") + " > /dev/null; [ $? -le 1 ]"
+        prof = e("profile s --json") + " > /dev/null"
+        one = "EMEND_THREADS=1 "
+        p1, p2, c1, c2 = self.interleaved(
+            runs,
+            [
+                ("EMEND_THREADS=1 emend profile s --json", None, one + prof, ing, ""),
+                ("emend profile s --json (every core)", None, prof, ing, ""),
+                ("EMEND_THREADS=1 emend check s --json", None, one + chk, ing, ""),
+                ("emend check s --json (every core)", None, chk, ing, ""),
+            ],
+        )
+        t.row("cores", "profile, one thread vs every core", p1)
+        t.row("cores", "profile, one thread vs every core", p2,
+              faster(p2, p1, "one thread", 1.6))
+        t.row("cores", "check (demo/rules.toml), one thread vs every core", c1)
+        t.row("cores", "check (demo/rules.toml), one thread vs every core", c2,
+              faster(c2, c1, "one thread", 1.6))
+        t.row("cores", "check vs profile, every core", c2,
+              within(c2, p2, "check", "profile", 1.0))
 
     def months(self, rows: int, w: Path, src: Path, lab: str) -> str:
         run, e = self.run, self.run.e

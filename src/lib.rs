@@ -17,6 +17,7 @@ pub mod ingest;
 pub mod ledger;
 pub mod model;
 pub mod profile;
+pub mod progress;
 pub mod query;
 pub mod report;
 pub mod signing;

@@ -22,6 +22,7 @@ use super::rules::{
     format_number,
 };
 use super::value::{Domain, Test, ValueType, parse_date, parse_number};
+use crate::model::RowBatch;
 
 /// The most distinct values counted per column for the near-constant flag; past it,
 /// counting is approximate (the Misra–Gries summary, from memory) and the share a lower
@@ -66,7 +67,8 @@ pub struct Checker<'r> {
     /// Per header column: its missing-value codes and declared type.
     cols: Vec<ColumnInfo<'r>>,
     thresholds: &'r FlagThresholds,
-    flags: Option<FlagCounts>,
+    /// Per header column, when the rules have `[flags]`.
+    flags: Option<Vec<FlagCounts>>,
 }
 
 /// What every rule needs to know about one header column.
@@ -89,6 +91,9 @@ struct ColumnCheck<'r> {
     pattern_slot: Option<usize>,
     hard_slot: Option<usize>,
     soft_slot: Option<usize>,
+    /// This column's outcome slots are `first_slot..first_slot + n_slots`.
+    first_slot: usize,
+    n_slots: usize,
 }
 
 /// One condition, with its columns resolved.
@@ -107,13 +112,27 @@ struct ResolvedClause<'r> {
     other_idx: Option<usize>,
 }
 
-/// Per-column counts for the `[flags]` thresholds.
-#[derive(Debug)]
+/// One column's counts for the `[flags]` thresholds.
+#[derive(Debug, Default)]
 struct FlagCounts {
-    missing: Vec<u64>,
-    /// Present cells per column, and their value counts when near-constant is asked for.
-    present: Vec<u64>,
-    values: Option<Vec<TopValues>>,
+    missing: u64,
+    /// Present cells, and their value counts when near-constant is asked for.
+    present: u64,
+    values: Option<TopValues>,
+}
+
+impl FlagCounts {
+    fn push(&mut self, value: Option<&str>) {
+        match value {
+            None => self.missing += 1,
+            Some(value) => {
+                self.present += 1;
+                if let Some(values) = &mut self.values {
+                    values.push(value);
+                }
+            }
+        }
+    }
 }
 
 /// A Misra–Gries summary (from memory): at most `TRACKED_VALUES` counters; when a new value
@@ -209,7 +228,8 @@ impl<'r> Checker<'r> {
             });
             outcomes.len() - 1
         };
-        let mut columns = Vec::new();
+        let mut columns: Vec<ColumnCheck<'r>> = Vec::new();
+        let mut next_slot = 0;
         for c in &rules.columns {
             let name = c.column.name.as_str();
             let id = |kind: &str| format!("{name}.{kind}");
@@ -257,7 +277,23 @@ impl<'r> Checker<'r> {
                     );
                     slot(id("soft"), description, Severity::Warning, b.pos.line)
                 }),
+                first_slot: 0,
+                n_slots: 0,
             });
+            // The slots just made for this column follow the previous column's.
+            let check = columns.last_mut().expect("just pushed");
+            let slots = [
+                check.type_slot,
+                check.required_slot,
+                check.unique.as_ref().map(|u| u.0),
+                check.levels.as_ref().map(|l| l.0),
+                check.pattern_slot,
+                check.hard_slot,
+                check.soft_slot,
+            ];
+            check.n_slots = slots.iter().flatten().count();
+            check.first_slot = slots.iter().flatten().min().copied().unwrap_or(next_slot);
+            next_slot += check.n_slots;
         }
         let mut conditions = Vec::new();
         for condition in &rules.conditions {
@@ -291,13 +327,17 @@ impl<'r> Checker<'r> {
         }
         let thresholds = &rules.flags;
         let flags = (thresholds.mostly_missing.is_some() || thresholds.near_constant.is_some())
-            .then(|| FlagCounts {
-                missing: vec![0; header.len()],
-                present: vec![0; header.len()],
-                values: thresholds
-                    .near_constant
-                    .as_ref()
-                    .map(|_| header.iter().map(|_| TopValues::default()).collect()),
+            .then(|| {
+                header
+                    .iter()
+                    .map(|_| FlagCounts {
+                        values: thresholds
+                            .near_constant
+                            .as_ref()
+                            .map(|_| TopValues::default()),
+                        ..FlagCounts::default()
+                    })
+                    .collect()
             });
         Ok(Checker {
             n_rows: 0,
@@ -328,165 +368,112 @@ impl<'r> Checker<'r> {
     /// blank one; cells past the end of a short row count as missing, extra cells are ignored.
     pub fn push_row(&mut self, pos: u64, row: &str, cells: &[Option<&str>]) {
         self.n_rows += 1;
-        let raw = |col_idx: usize| cells.get(col_idx).copied().flatten();
-        let value_at = |col_idx: usize| present(raw(col_idx), self.cols[col_idx].missing_codes);
-
+        let cell = |col_idx: usize| cells.get(col_idx).copied().flatten();
+        let name = || row.to_owned();
         for check in &mut self.columns {
-            let rules = check.rules;
-            let name = rules.column.name.as_str();
-            let cell = raw(check.col_idx);
-            let violation = |message: String, other_pos: Option<u64>| Violation {
+            let base = check.first_slot;
+            check_column(
+                check,
+                &self.cols,
+                &mut self.outcomes[base..],
                 pos,
-                row: row.to_owned(),
-                column: Some(name.to_owned()),
-                value: cell.map(str::to_owned),
-                other_pos,
-                message,
-            };
-            let Some(value) = value_at(check.col_idx) else {
-                if let Some(slot) = check.required_slot {
-                    record(&mut self.outcomes[slot], || {
-                        let message = match cell.map(str::trim) {
-                            None => "the cell is missing".to_owned(),
-                            Some("") => "the cell is blank".to_owned(),
-                            Some(code) => format!("the cell holds the missing-value code {code:?}"),
-                        };
-                        violation(message, None)
-                    });
-                }
-                continue;
-            };
-            if let (Some(slot), Some(t)) = (check.type_slot, &rules.value_type)
-                && !t.value.accepts(value)
-            {
-                record(&mut self.outcomes[slot], || {
-                    violation(format!("{value:?} is not {}", t.value.phrase()), None)
-                });
-            }
-            if let Some((slot, seen)) = &mut check.unique {
-                let mut hasher = DefaultHasher::new();
-                value.hash(&mut hasher);
-                match seen.entry(hasher.finish()) {
-                    Entry::Occupied(first) => {
-                        let first = *first.get();
-                        record(&mut self.outcomes[*slot], || {
-                            violation(format!("{value:?} also at position {first}"), Some(first))
-                        });
-                    }
-                    Entry::Vacant(entry) => {
-                        entry.insert(pos);
-                    }
-                }
-            }
-            if let Some((slot, levels)) = &check.levels
-                && !levels.contains(value)
-            {
-                record(&mut self.outcomes[*slot], || {
-                    violation(format!("{value:?} is not an allowed level"), None)
-                });
-            }
-            if let (Some(slot), Some(p)) = (check.pattern_slot, &rules.pattern)
-                && !p.value.regex.is_match(value)
-            {
-                record(&mut self.outcomes[slot], || {
-                    violation(format!("{value:?} does not match {}", p.value.source), None)
-                });
-            }
-            for (slot, bounds, word) in [
-                (check.hard_slot, &rules.hard, "hard"),
-                (check.soft_slot, &rules.soft, "soft"),
-            ] {
-                let (Some(slot), Some(bounds)) = (slot, bounds) else {
-                    continue;
-                };
-                if let Some(message) = out_of_bounds(&bounds.value, value, word) {
-                    record(&mut self.outcomes[slot], || violation(message, None));
-                }
-            }
+                &name,
+                &cell,
+            );
         }
-
         for check in &self.conditions {
-            let holds = |c: &ResolvedClause<'_>| self.clause_holds(c, cells);
-            if !check.when.iter().all(|c| holds(c) == Some(true)) {
-                continue;
-            }
-            let Some(failed) = check.then.iter().find(|c| holds(c) == Some(false)) else {
-                continue;
-            };
-            let cell = raw(failed.col_idx);
-            let found = match value_at(failed.col_idx) {
-                Some(value) => format!("{value:?}"),
-                None => "it missing".to_owned(),
-            };
-            let mut expected = clause_text(failed.clause);
-            if let Some(other_idx) = failed.other_idx
-                && let Some(other) = value_at(other_idx)
-            {
-                expected.push_str(&format!(" ({other:?})"));
-            }
-            record(&mut self.outcomes[check.slot], || Violation {
+            check_condition(
+                check,
+                &self.cols,
+                &mut self.outcomes[check.slot],
                 pos,
-                row: row.to_owned(),
-                column: Some(failed.clause.column.name.clone()),
-                value: cell.map(str::to_owned),
-                other_pos: None,
-                message: format!("expected {expected}, found {found}"),
-            });
+                &name,
+                &cell,
+            );
         }
-
         if let Some(flags) = &mut self.flags {
-            for (col_idx, info) in self.cols.iter().enumerate() {
-                match present(raw(col_idx), info.missing_codes) {
-                    None => flags.missing[col_idx] += 1,
-                    Some(value) => {
-                        flags.present[col_idx] += 1;
-                        if let Some(values) = &mut flags.values {
-                            values[col_idx].push(value);
-                        }
-                    }
-                }
+            for (col_idx, (info, counts)) in self.cols.iter().zip(flags.iter_mut()).enumerate() {
+                counts.push(present(cell(col_idx), info.missing_codes));
             }
         }
     }
 
-    /// Whether a clause holds in this row: `None` when it cannot say (a compared cell is
-    /// missing, or does not read as the type being compared).
-    fn clause_holds(&self, c: &ResolvedClause<'_>, cells: &[Option<&str>]) -> Option<bool> {
-        let value = |col_idx: usize| {
-            present(
-                cells.get(col_idx).copied().flatten(),
-                self.cols[col_idx].missing_codes,
-            )
-        };
-        let left = value(c.col_idx);
-        let test = c.clause.test;
-        match test {
-            Test::IsMissing => return Some(left.is_none()),
-            Test::IsPresent => return Some(left.is_some()),
-            _ => {}
+    /// Checks the rows `rows` of `batch`, in that order, as [`Checker::push_row`] would one by
+    /// one; `name(r)` is the name shown for row `r` of the batch (asked for only when the row
+    /// breaks a rule). Each column's rules, each condition and each column's flag counts run
+    /// side by side on the caller's thread pool, each over the rows in order, so the report is
+    /// the same with one thread or many.
+    pub fn push_batch(
+        &mut self,
+        batch: &RowBatch,
+        rows: &[usize],
+        name: &(dyn Fn(usize) -> String + Sync),
+    ) {
+        use rayon::prelude::*;
+        self.n_rows += rows.len() as u64;
+        // Each unit's outcome slots are one run of the slot list: cut it into those runs.
+        let mut rest: &mut [RuleOutcome] = &mut self.outcomes;
+        let mut taken = 0;
+        let mut column_slots = Vec::with_capacity(self.columns.len());
+        for check in &self.columns {
+            let (mine, tail) = std::mem::take(&mut rest).split_at_mut(check.n_slots);
+            debug_assert!(check.n_slots == 0 || check.first_slot == taken);
+            taken += check.n_slots;
+            column_slots.push(mine);
+            rest = tail;
         }
-        let a = left?;
-        let declared = self.cols[c.col_idx].value_type.map(ValueType::domain);
-        let domain = |literal: &Literal| {
-            declared
-                .or(literal.domain)
-                .unwrap_or_else(|| Domain::infer(a, &literal.text))
-        };
-        match &c.clause.operand {
-            Operand::Nothing => None,
-            Operand::Value(literal) => test.compare(domain(literal), a, &literal.text),
-            Operand::Values(literals) => Some(literals.iter().any(|l| domain(l).equal(a, &l.text))),
-            Operand::Column(_) => {
-                let other_idx = c
-                    .other_idx
-                    .expect("value_of clauses resolve their other column");
-                let b = value(other_idx)?;
-                let domain = declared
-                    .or(self.cols[other_idx].value_type.map(ValueType::domain))
-                    .unwrap_or_else(|| Domain::infer(a, b));
-                test.compare(domain, a, b)
+        let mut condition_slots = Vec::with_capacity(self.conditions.len());
+        for check in &self.conditions {
+            debug_assert_eq!(check.slot, taken);
+            let (mine, tail) = std::mem::take(&mut rest).split_at_mut(1);
+            taken += 1;
+            condition_slots.push(&mut mine[0]);
+            rest = tail;
+        }
+        enum Unit<'u, 'r> {
+            Column(&'u mut ColumnCheck<'r>, &'u mut [RuleOutcome]),
+            Condition(&'u ConditionCheck<'r>, &'u mut RuleOutcome),
+            Flags(usize, &'u mut FlagCounts),
+        }
+        let mut units: Vec<Unit<'_, 'r>> = Vec::new();
+        units.extend(
+            self.columns
+                .iter_mut()
+                .zip(column_slots)
+                .map(|(c, o)| Unit::Column(c, o)),
+        );
+        units.extend(
+            self.conditions
+                .iter()
+                .zip(condition_slots)
+                .map(|(c, o)| Unit::Condition(c, o)),
+        );
+        if let Some(flags) = &mut self.flags {
+            units.extend(flags.iter_mut().enumerate().map(|(c, f)| Unit::Flags(c, f)));
+        }
+        let cols = &self.cols;
+        units.into_par_iter().for_each(|unit| match unit {
+            Unit::Column(check, outcomes) => {
+                for &r in rows {
+                    check_column(check, cols, outcomes, batch.pos(r), &|| name(r), &|c| {
+                        batch.cell(r, c)
+                    });
+                }
             }
-        }
+            Unit::Condition(check, outcome) => {
+                for &r in rows {
+                    check_condition(check, cols, outcome, batch.pos(r), &|| name(r), &|c| {
+                        batch.cell(r, c)
+                    });
+                }
+            }
+            Unit::Flags(c, counts) => {
+                let codes = cols[c].missing_codes;
+                for &r in rows {
+                    counts.push(present(batch.cell(r, c), codes));
+                }
+            }
+        });
     }
 
     /// Ends the check and hands back the report.
@@ -496,8 +483,9 @@ impl<'r> Checker<'r> {
         let mut flags = Vec::new();
         if let Some(counts) = &self.flags {
             for (col_idx, info) in self.cols.iter().enumerate() {
+                let counts = &counts[col_idx];
                 if let Some(threshold) = &self.thresholds.mostly_missing {
-                    let share = ratio(counts.missing[col_idx], self.n_rows);
+                    let share = ratio(counts.missing, self.n_rows);
                     if self.n_rows > 0 && share > threshold.value {
                         flags.push(ColumnFlag {
                             column: info.name.to_owned(),
@@ -515,8 +503,8 @@ impl<'r> Checker<'r> {
                 else {
                     continue;
                 };
-                let present = counts.present[col_idx];
-                if let Some((value, count)) = values[col_idx].top() {
+                let present = counts.present;
+                if let Some((value, count)) = values.top() {
                     let share = ratio(count, present);
                     if share >= threshold.value {
                         flags.push(ColumnFlag {
@@ -526,7 +514,7 @@ impl<'r> Checker<'r> {
                             threshold: threshold.value,
                             line: threshold.pos.line,
                             value: Some(value.to_owned()),
-                            exact: values[col_idx].drops == 0,
+                            exact: values.drops == 0,
                         });
                     }
                 }
@@ -536,6 +524,169 @@ impl<'r> Checker<'r> {
             n_rows: self.n_rows,
             rules,
             flags,
+        }
+    }
+}
+
+/// A cell of the row being checked, by column index: `None` is missing.
+type CellOf<'c, 'v> = dyn Fn(usize) -> Option<&'v str> + 'c;
+
+/// One column's rules over one row. `outcomes` starts at the column's first slot.
+fn check_column<'v>(
+    check: &mut ColumnCheck<'_>,
+    cols: &[ColumnInfo<'_>],
+    outcomes: &mut [RuleOutcome],
+    pos: u64,
+    row: &dyn Fn() -> String,
+    raw: &CellOf<'_, 'v>,
+) {
+    let base = check.first_slot;
+    let rules = check.rules;
+    let name = rules.column.name.as_str();
+    let cell = raw(check.col_idx);
+    let violation = |message: String, other_pos: Option<u64>| Violation {
+        pos,
+        row: row(),
+        column: Some(name.to_owned()),
+        value: cell.map(str::to_owned),
+        other_pos,
+        message,
+    };
+    let Some(value) = present(cell, cols[check.col_idx].missing_codes) else {
+        if let Some(slot) = check.required_slot {
+            record(&mut outcomes[slot - base], || {
+                let message = match cell.map(str::trim) {
+                    None => "the cell is missing".to_owned(),
+                    Some("") => "the cell is blank".to_owned(),
+                    Some(code) => format!("the cell holds the missing-value code {code:?}"),
+                };
+                violation(message, None)
+            });
+        }
+        return;
+    };
+    if let (Some(slot), Some(t)) = (check.type_slot, &rules.value_type)
+        && !t.value.accepts(value)
+    {
+        record(&mut outcomes[slot - base], || {
+            violation(format!("{value:?} is not {}", t.value.phrase()), None)
+        });
+    }
+    if let Some((slot, seen)) = &mut check.unique {
+        let mut hasher = DefaultHasher::new();
+        value.hash(&mut hasher);
+        match seen.entry(hasher.finish()) {
+            Entry::Occupied(first) => {
+                let first = *first.get();
+                record(&mut outcomes[*slot - base], || {
+                    violation(format!("{value:?} also at position {first}"), Some(first))
+                });
+            }
+            Entry::Vacant(entry) => {
+                entry.insert(pos);
+            }
+        }
+    }
+    if let Some((slot, levels)) = &check.levels
+        && !levels.contains(value)
+    {
+        record(&mut outcomes[*slot - base], || {
+            violation(format!("{value:?} is not an allowed level"), None)
+        });
+    }
+    if let (Some(slot), Some(p)) = (check.pattern_slot, &rules.pattern)
+        && !p.value.regex.is_match(value)
+    {
+        record(&mut outcomes[slot - base], || {
+            violation(format!("{value:?} does not match {}", p.value.source), None)
+        });
+    }
+    for (slot, bounds, word) in [
+        (check.hard_slot, &rules.hard, "hard"),
+        (check.soft_slot, &rules.soft, "soft"),
+    ] {
+        let (Some(slot), Some(bounds)) = (slot, bounds) else {
+            continue;
+        };
+        if let Some(message) = out_of_bounds(&bounds.value, value, word) {
+            record(&mut outcomes[slot - base], || violation(message, None));
+        }
+    }
+}
+
+/// One condition over one row.
+fn check_condition<'v>(
+    check: &ConditionCheck<'_>,
+    cols: &[ColumnInfo<'_>],
+    outcome: &mut RuleOutcome,
+    pos: u64,
+    row: &dyn Fn() -> String,
+    raw: &CellOf<'_, 'v>,
+) {
+    let value_at = |col_idx: usize| present(raw(col_idx), cols[col_idx].missing_codes);
+    let holds = |c: &ResolvedClause<'_>| clause_holds(c, cols, raw);
+    if !check.when.iter().all(|c| holds(c) == Some(true)) {
+        return;
+    }
+    let Some(failed) = check.then.iter().find(|c| holds(c) == Some(false)) else {
+        return;
+    };
+    let cell = raw(failed.col_idx);
+    let found = match value_at(failed.col_idx) {
+        Some(value) => format!("{value:?}"),
+        None => "it missing".to_owned(),
+    };
+    let mut expected = clause_text(failed.clause);
+    if let Some(other_idx) = failed.other_idx
+        && let Some(other) = value_at(other_idx)
+    {
+        expected.push_str(&format!(" ({other:?})"));
+    }
+    record(outcome, || Violation {
+        pos,
+        row: row(),
+        column: Some(failed.clause.column.name.clone()),
+        value: cell.map(str::to_owned),
+        other_pos: None,
+        message: format!("expected {expected}, found {found}"),
+    });
+}
+
+/// Whether a clause holds in this row: `None` when it cannot say (a compared cell is
+/// missing, or does not read as the type being compared).
+fn clause_holds<'v>(
+    c: &ResolvedClause<'_>,
+    cols: &[ColumnInfo<'_>],
+    raw: &CellOf<'_, 'v>,
+) -> Option<bool> {
+    let value = |col_idx: usize| present(raw(col_idx), cols[col_idx].missing_codes);
+    let left = value(c.col_idx);
+    let test = c.clause.test;
+    match test {
+        Test::IsMissing => return Some(left.is_none()),
+        Test::IsPresent => return Some(left.is_some()),
+        _ => {}
+    }
+    let a = left?;
+    let declared = cols[c.col_idx].value_type.map(ValueType::domain);
+    let domain = |literal: &Literal| {
+        declared
+            .or(literal.domain)
+            .unwrap_or_else(|| Domain::infer(a, &literal.text))
+    };
+    match &c.clause.operand {
+        Operand::Nothing => None,
+        Operand::Value(literal) => test.compare(domain(literal), a, &literal.text),
+        Operand::Values(literals) => Some(literals.iter().any(|l| domain(l).equal(a, &l.text))),
+        Operand::Column(_) => {
+            let other_idx = c
+                .other_idx
+                .expect("value_of clauses resolve their other column");
+            let b = value(other_idx)?;
+            let domain = declared
+                .or(cols[other_idx].value_type.map(ValueType::domain))
+                .unwrap_or_else(|| Domain::infer(a, b));
+            test.compare(domain, a, b)
         }
     }
 }

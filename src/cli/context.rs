@@ -19,6 +19,7 @@ pub struct CliContext {
     store: Option<PathBuf>,
     max_field_mib: Option<String>,
     max_evidence_mib: Option<String>,
+    threads: Option<String>,
 }
 
 /// A limit in MiB from the environment variable `var` (its text `value`), in bytes.
@@ -47,7 +48,27 @@ impl CliContext {
                 .map(PathBuf::from),
             max_field_mib: std::env::var("EMEND_MAX_FIELD_MIB").ok(),
             max_evidence_mib: std::env::var("EMEND_MAX_EVIDENCE_MIB").ok(),
+            threads: std::env::var("EMEND_THREADS").ok(),
         })
+    }
+
+    /// Sets how many threads the work of every command may use: `EMEND_THREADS` (1 runs
+    /// everything on one core, for measuring), or one per core by default.
+    pub fn start_thread_pool(&self) -> Result<()> {
+        let mut pool = rayon::ThreadPoolBuilder::new();
+        if let Some(text) = &self.threads {
+            match text.trim().parse::<usize>() {
+                Ok(n) if (1..=1024).contains(&n) => pool = pool.num_threads(n),
+                _ => {
+                    return Err(anyhow!(
+                        "EMEND_THREADS='{text}' is not a number of threads from 1 to 1024; e.g. EMEND_THREADS=1 to use one core"
+                    ));
+                }
+            }
+        }
+        // Only fails when a pool was already made, which then serves.
+        let _ = pool.build_global();
+        Ok(())
     }
 
     /// The largest field (and record) an input CSV may hold: `EMEND_MAX_FIELD_MIB`, 64 MiB by

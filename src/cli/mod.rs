@@ -49,7 +49,8 @@ EMEND_STORE names the store to use (its .emend/store.sqlite file or project fold
 from the current folder, which is refused when another user owns it. Commands that only read (verify, show, export, log, why, \
 diff, status, check, profile, tags) work on a store you can read but not write. \
 EMEND_MAX_FIELD_MIB is the largest field or row an input CSV may hold (default 64 MiB); \
-EMEND_MAX_EVIDENCE_MIB is the largest evidence or rules file (default 256 MiB).\n\n\
+EMEND_MAX_EVIDENCE_MIB is the largest evidence or rules file (default 256 MiB); \
+EMEND_THREADS is how many threads profile, check, diff, export and report use (default: one per core).\n\n\
 Inputs are regular files or pipes, each read once; 'emend ingest -' reads the extract from standard input."
 )]
 struct Cli {
@@ -202,6 +203,7 @@ fn is_broken_pipe(err: &anyhow::Error) -> bool {
 
 fn run(cli: Cli) -> Result<i32> {
     let cx = &CliContext::from_env()?;
+    cx.start_thread_pool()?;
     // Commands that may add a commit add a receipt of the new head to the user's receipt
     // file, when one is named ('receipt --keep-in').
     let may_commit = matches!(

@@ -4,12 +4,14 @@
 //! a hashed struct is a `Vec` in a defined order, never a hash map, so the same body always gives
 //! the same bytes and so the same id.
 
+pub mod batch;
 pub mod edit;
 mod wire;
 
 pub use wire::CellFilter;
 
 use crate::hash::{BlobId, CommitId, Digest, VersionHash};
+pub use batch::RowBatch;
 use edit::{Rows, Transform};
 use serde::{Deserialize, Serialize};
 use std::fmt;

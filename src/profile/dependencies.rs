@@ -91,6 +91,58 @@ impl PairCounter {
         }
     }
 
+    /// Adds a batch of rows given column by column: `ids[c][k]` is row `k`'s level id in
+    /// column `c`, as for [`PairCounter::push`]; the first row is number `first_row + 1`.
+    /// Columns marked in `skip` (keys) take part in no pair. Column pairs are counted side by
+    /// side on the caller's thread pool; each pair still sees its rows in order, so the counts
+    /// are those of pushing the rows one by one.
+    pub fn push_columns(&mut self, first_row: u64, ids: &[Vec<Option<u32>>], skip: &[bool]) {
+        use rayon::prelude::*;
+        let room = MAX_ROWS.saturating_sub(self.rows);
+        let n_rows = ids.first().map_or(0, Vec::len).min(room as usize);
+        if n_rows == 0 || self.n_cols == 0 {
+            return;
+        }
+        self.rows += n_rows as u64;
+        let n = self.n_cols.min(ids.len());
+        let n_cols = self.n_cols;
+        let real = |id: Option<u32>| id.filter(|&i| i != u32::MAX);
+        self.maps
+            .par_chunks_mut(n_cols)
+            .enumerate()
+            .take(n)
+            .for_each(|(a, maps_a)| {
+                if skip[a] {
+                    return;
+                }
+                for (k, &id_a) in ids[a].iter().enumerate().take(n_rows) {
+                    let Some(ia) = real(id_a) else {
+                        continue;
+                    };
+                    for b in a + 1..n {
+                        if skip[b] {
+                            continue;
+                        }
+                        let Some(ib) = real(ids[b][k]) else {
+                            continue;
+                        };
+                        let slot = &mut maps_a[b];
+                        let Some(map) = slot else { continue };
+                        let key = (u64::from(ia) << 32) | u64::from(ib);
+                        if !map.contains_key(&key) && map.len() >= MAX_PAIR_CELLS {
+                            *slot = None;
+                            continue;
+                        }
+                        let cell = map.entry(key).or_default();
+                        if let Some(r) = cell.rows.get_mut(cell.count as usize) {
+                            *r = first_row + k as u64 + 1;
+                        }
+                        cell.count += 1;
+                    }
+                }
+            });
+    }
+
     /// The contradictions found: one finding per value whose few rows break its pattern.
     /// `names[c][id]` is the value of level `id` of column `c`; `columns` the column names;
     /// `skip[c]` leaves a column out (keys, distrusted columns).

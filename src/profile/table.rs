@@ -13,6 +13,8 @@ use std::collections::BTreeMap;
 
 use serde::{Deserialize, Serialize};
 
+use crate::model::RowBatch;
+
 use super::column::{ColumnProfile, ColumnProfiler, Flag, ProfileOptions};
 use super::dependencies::{MAX_COLUMNS, PairCounter};
 use super::finding::{
@@ -96,6 +98,8 @@ pub struct TableProfiler {
     /// Value pairs of the leading columns, for mined dependencies.
     pairs: PairCounter,
     ids: Vec<Option<u32>>,
+    /// Level ids of a batch, column by column (reused batch after batch).
+    batch_ids: Vec<Vec<Option<u32>>>,
 }
 
 /// Rows listed in a row-level finding.
@@ -137,6 +141,7 @@ impl TableProfiler {
             n_empty: 0,
             pairs: PairCounter::new(header.len()),
             ids: Vec::with_capacity(header.len()),
+            batch_ids: Vec::new(),
         }
     }
 
@@ -188,9 +193,113 @@ impl TableProfiler {
         }
     }
 
+    /// Adds a batch of rows: the rows `rows` of `batch`, in that order, as if each were given
+    /// to [`TableProfiler::push_row`]. Columns are profiled side by side on the caller's
+    /// thread pool, then the pairs of columns; every column and pair sees its cells in row
+    /// order, so the profile is the same as row by row, with one thread or many.
+    pub fn push_batch(&mut self, batch: &RowBatch, rows: &[usize]) {
+        use rayon::prelude::*;
+        if rows.is_empty() {
+            return;
+        }
+        let first = self.n_rows;
+        let n_cols = self.columns.len();
+        let mut ids = std::mem::take(&mut self.batch_ids);
+        ids.resize_with(n_cols, Vec::new);
+        let TableProfiler {
+            columns,
+            is_key,
+            seen,
+            empty,
+            n_empty,
+            ..
+        } = self;
+        let mut row = Vec::with_capacity(n_cols);
+        rayon::join(
+            || {
+                columns
+                    .par_iter_mut()
+                    .zip(ids.par_iter_mut())
+                    .enumerate()
+                    .for_each(|(c, (column, out))| {
+                        out.clear();
+                        out.extend(rows.iter().map(|&r| column.push_level(batch.cell(r, c))));
+                    })
+            },
+            || {
+                let mut rc = RowChecks {
+                    is_key,
+                    seen,
+                    empty,
+                    n_empty,
+                };
+                for (k, &r) in rows.iter().enumerate() {
+                    batch.row_into(r, &mut row);
+                    rc.row(first + k as u64 + 1, &row);
+                }
+            },
+        );
+        self.n_rows += rows.len() as u64;
+        let tracked = self.tracked;
+        let (pairs, blank_filled, pair_rows) =
+            (&mut self.pairs, &mut self.blank_filled, &mut self.pair_rows);
+        let is_key = &self.is_key;
+        let ids_ref = &ids;
+        rayon::join(
+            || pairs.push_columns(first, &ids_ref[..n_cols.min(MAX_COLUMNS)], is_key),
+            || {
+                if tracked == 0 {
+                    return;
+                }
+                blank_filled
+                    .par_chunks_mut(tracked)
+                    .zip(pair_rows.par_chunks_mut(tracked))
+                    .enumerate()
+                    .for_each(|(a, (counts, kept))| {
+                        for (k, id_a) in ids_ref[a].iter().enumerate().take(rows.len()) {
+                            if id_a.is_some() {
+                                continue;
+                            }
+                            for b in 0..tracked {
+                                if ids_ref[b][k].is_none() {
+                                    continue;
+                                }
+                                counts[b] += 1;
+                                if let Some(slot) = kept[b].get_mut((counts[b] - 1) as usize) {
+                                    *slot = first + k as u64 + 1;
+                                }
+                            }
+                        }
+                    })
+            },
+        );
+        self.batch_ids = ids;
+    }
+
     /// Exact copies (tables without a key) and rows with every measurement missing.
     fn row_checks(&mut self, row: &[Option<&str>]) {
-        let n = self.columns.len();
+        RowChecks {
+            is_key: &self.is_key,
+            seen: &mut self.seen,
+            empty: &mut self.empty,
+            n_empty: &mut self.n_empty,
+        }
+        .row(self.n_rows, row);
+    }
+}
+
+/// The state of the whole-row checks (copies, empty rows), borrowed from a [`TableProfiler`].
+struct RowChecks<'a> {
+    is_key: &'a [bool],
+    seen: &'a mut Option<Vec<u64>>,
+    empty: &'a mut Vec<u64>,
+    n_empty: &'a mut u64,
+}
+
+impl RowChecks<'_> {
+    /// Row number `n_row` (1-based).
+    fn row(&mut self, n_row: u64, row: &[Option<&str>]) {
+        let n = self.is_key.len();
         let measured = (0..n).filter(|&i| !self.is_key[i]).count();
         let empty = measured > 0
             && (0..n).filter(|&i| !self.is_key[i]).all(|i| {
@@ -200,16 +309,16 @@ impl TableProfiler {
                     .is_none_or(|c| c.trim().is_empty())
             });
         if empty {
-            self.n_empty += 1;
+            *self.n_empty += 1;
             if self.empty.len() < ROWS_LISTED {
-                self.empty.push(self.n_rows);
+                self.empty.push(n_row);
             }
-            if let Some(seen) = &mut self.seen {
+            if let Some(seen) = self.seen.as_mut() {
                 seen.push(0);
             }
             return;
         }
-        if let Some(seen) = &mut self.seen {
+        if let Some(seen) = self.seen.as_mut() {
             // FNV-1a over the cells with a separator byte: a 64-bit fingerprint of the row.
             // Two different rows share one with odds of about n²/2⁶⁵, so a reported copy is
             // checked by value only in the sense that such a collision is vanishingly rare.
@@ -232,7 +341,9 @@ impl TableProfiler {
             seen.push(h.max(1));
         }
     }
+}
 
+impl TableProfiler {
     /// Computes every column's profile and all findings.
     pub fn finish(self) -> TableProfile {
         let TableProfiler {

@@ -3,7 +3,7 @@
 //! how it was produced.
 
 use crate::hash::{VersionHash, VersionHasher};
-use crate::model::RowId;
+use crate::model::{RowBatch, RowId};
 
 /// Builds the canonical version hash: header, then each row (id, exclusion, cells), then the
 /// distrusted columns. Ingest and rebuild both use it, so they agree by construction.
@@ -29,6 +29,19 @@ impl VersionHashBuilder {
         }
         for c in cells {
             self.h.item(4, c.as_deref());
+        }
+    }
+
+    /// Add every row of a batch, in order (the same as [`VersionHashBuilder::row`] for each).
+    pub fn batch(&mut self, batch: &RowBatch) {
+        for r in 0..batch.len() {
+            self.h.item(2, Some(batch.id(r)));
+            if batch.excluded(r) {
+                self.h.item(3, None);
+            }
+            for c in 0..batch.n_cols() {
+                self.h.item(4, batch.cell(r, c));
+            }
         }
     }
 

@@ -1,11 +1,11 @@
 //! Filling the report and export views from the store: the glue between history and the pure
 //! renderers in [`crate::report`].
 
-use super::profiling::{declared_codes, profile_version};
+use super::profiling::{ProfileSink, declared_codes, profile_version};
 use crate::error::Result;
 use crate::model::{Change, CommitBody, FixAction};
-use crate::profile::{ColumnProfile, InferredType, TableOptions};
-use crate::query::{Rev, VerifyReport, Version, decode, rules_at};
+use crate::profile::{ColumnProfile, InferredType, TableOptions, TableProfile};
+use crate::query::{Rev, RowSink, VerifyReport, Version, decode, rules_at};
 use crate::report::{
     Bin, CellView, CodebookColumn, CodebookSource, CodebookView, ColumnStats, ColumnView,
     CommitView, CsvwDatatype, DecisionRow, DialectView, EvidenceView, ExtractView, FixView,
@@ -127,13 +127,22 @@ fn stats(p: &ColumnProfile, values: Option<&[f64]>) -> ColumnStats {
     }
 }
 
+/// The version hash as rows stream past.
+struct HashSink(crate::table::VersionHashBuilder);
+
+impl RowSink for HashSink {
+    fn push_batch(&mut self, batch: &crate::model::RowBatch) {
+        self.0.batch(batch);
+    }
+}
+
 fn columns(
     reader: &Reader<'_>,
     before: &Version,
     after: &Version,
+    pa: TableProfile,
 ) -> Result<(Vec<ColumnView>, Vec<ProblemView>)> {
     let pb = profile_version(reader, before, TableOptions::default())?;
-    let pa = profile_version(reader, after, TableOptions::default())?;
     // The numeric columns (numeric before or after), read in one pass per version.
     let numeric: Vec<(usize, Option<usize>)> = pa
         .columns
@@ -405,7 +414,25 @@ pub fn report_view(
             c.conflict.cells.len()
         ));
     }
-    let (mut columns, mut problems) = columns(reader, &before, &after)?;
+    // One read of the version shown serves its profile, its check and its hash, side by side.
+    let rules = rules_at(reader, table, upto)?
+        .and_then(|(_, _, text)| crate::checks::RuleSet::parse(&text).ok());
+    let mut profile_sink = ProfileSink::new(reader, &after, TableOptions::default())?;
+    let mut check_sink = match &rules {
+        Some(r) => super::check::CheckSink::new(&after, r).ok(),
+        None => None,
+    };
+    let mut hash_sink = HashSink(crate::table::VersionHashBuilder::new(after.header()));
+    {
+        let mut sinks: Vec<&mut dyn RowSink> = vec![&mut profile_sink, &mut hash_sink];
+        if let Some(c) = &mut check_sink {
+            sinks.push(c);
+        }
+        crate::query::scan(reader, &after, &mut sinks, &crate::progress::NONE, "report")?;
+    }
+    let pa = profile_sink.finish(reader, &after)?;
+    let version_hash = after.finish_hash(hash_sink.0);
+    let (mut columns, mut problems) = columns(reader, &before, &after, pa)?;
     // Each column leads with what the cleaning did to it.
     for c in &mut columns {
         let per: Vec<crate::model::FixRecord> = all_records
@@ -445,10 +472,8 @@ pub fn report_view(
                 .push_str(" The column is distrusted: exports leave it out.");
         }
     }
-    if let Some((_, _, text)) = rules_at(reader, table, upto)?
-        && let Ok(ruleset) = crate::checks::RuleSet::parse(&text)
-        && let Ok(report) = super::check::check_version(reader, &after, &ruleset)
-    {
+    if let Some(sink) = check_sink {
+        let report = sink.checker.finish();
         for r in report.rules.iter().filter(|r| r.violations > 0) {
             problems.push(ProblemView {
                 column: r.id.split('.').next().unwrap_or("").to_string(),
@@ -458,7 +483,6 @@ pub fn report_view(
             });
         }
     }
-    let (version_hash, _) = after.hash(reader)?;
     let tags: Vec<String> = reader
         .tags()?
         .into_iter()

@@ -6,15 +6,17 @@
 //! counted as declared missing. Row numbers in the result are 1-based positions in the extract.
 
 use crate::error::Result;
+use crate::model::RowBatch;
 use crate::model::{Change, FixAction};
 use crate::profile::Finding;
 use crate::profile::column::ValueRows;
 use crate::profile::finding::{Decided, RowName};
 use crate::profile::{FindingDetail, TableOptions, TableProfile, TableProfiler};
+use crate::progress::Progress;
+use crate::query::RowSink;
 use crate::query::{Version, decode};
 use crate::store::Reader;
 use std::collections::{BTreeMap, HashMap};
-use std::ops::ControlFlow;
 
 /// Missing-value codes declared for each column of `version`'s table by fixes up to it.
 pub fn declared_codes(
@@ -129,36 +131,87 @@ impl KeyNames {
     }
 }
 
-/// Profile every column of a version in one streaming pass.
+/// The profile of a version as its rows stream past (excluded rows left out).
+pub(crate) struct ProfileSink {
+    profiler: TableProfiler,
+    positions: Vec<u64>,
+    keys: KeyNames,
+}
+
+impl RowSink for ProfileSink {
+    fn push_batch(&mut self, batch: &RowBatch) {
+        let rows = batch.included();
+        for &r in &rows {
+            self.positions.push(batch.pos(r));
+            self.keys.push(batch.id(r));
+        }
+        self.profiler.push_batch(batch, &rows);
+    }
+}
+
+/// Profile every column of a version in one streaming pass, on the caller's thread pool.
 pub fn profile_version(
     reader: &Reader<'_>,
     version: &Version,
-    mut options: TableOptions,
+    options: TableOptions,
 ) -> Result<TableProfile> {
-    for (col, codes) in declared_codes(reader, version)? {
-        let entry = options.declared_codes.entry(col).or_default();
-        for c in codes {
-            if !entry.contains(&c) {
-                entry.push(c);
+    profile_version_with(reader, version, options, &crate::progress::NONE)
+}
+
+/// [`profile_version`], telling `progress` how many rows are done.
+pub fn profile_version_with(
+    reader: &Reader<'_>,
+    version: &Version,
+    options: TableOptions,
+    progress: &dyn Progress,
+) -> Result<TableProfile> {
+    let mut sink = ProfileSink::new(reader, version, options)?;
+    crate::query::scan(reader, version, &mut [&mut sink], progress, "profile")?;
+    sink.finish(reader, version)
+}
+
+impl ProfileSink {
+    /// A profile of `version` to feed with its rows (in a [`crate::query::scan`] that may
+    /// feed other work too), then [`ProfileSink::finish`].
+    pub(crate) fn new(
+        reader: &Reader<'_>,
+        version: &Version,
+        mut options: TableOptions,
+    ) -> Result<ProfileSink> {
+        for (col, codes) in declared_codes(reader, version)? {
+            let entry = options.declared_codes.entry(col).or_default();
+            for c in codes {
+                if !entry.contains(&c) {
+                    entry.push(c);
+                }
             }
         }
-    }
-    if options.key_columns.is_empty() {
-        options.key_columns = version.def.key.clone();
-    }
-    let mut profiler = TableProfiler::new(version.header(), options);
-    let mut positions: Vec<u64> = Vec::new();
-    let mut keys = KeyNames::new(!version.def.key.is_empty());
-    version.for_each_row(reader, |row| {
-        if row.excluded {
-            return Ok(ControlFlow::Continue(()));
+        if options.key_columns.is_empty() {
+            options.key_columns = version.def.key.clone();
         }
-        positions.push(row.pos);
-        keys.push(row.id.as_str());
-        let cells: Vec<Option<&str>> = row.cells.iter().map(|c| c.as_deref()).collect();
-        profiler.push_row(&cells);
-        Ok(ControlFlow::Continue(()))
-    })?;
+        Ok(ProfileSink {
+            profiler: TableProfiler::new(version.header(), options),
+            positions: Vec::new(),
+            keys: KeyNames::new(!version.def.key.is_empty()),
+        })
+    }
+
+    /// The profile of every row given, with the decisions taken up to `version`.
+    pub(crate) fn finish(self, reader: &Reader<'_>, version: &Version) -> Result<TableProfile> {
+        finish_profile(reader, version, self)
+    }
+}
+
+fn finish_profile(
+    reader: &Reader<'_>,
+    version: &Version,
+    sink: ProfileSink,
+) -> Result<TableProfile> {
+    let ProfileSink {
+        profiler,
+        positions,
+        keys,
+    } = sink;
     let mut profile = profiler.finish();
     // Name each finding's rows by key and position, before the numbers below turn into
     // positions (the profiler numbers the rows it was given, 1 for the first).

@@ -12,6 +12,7 @@ mod attacks_output;
 mod audit;
 mod bad_input;
 mod carry;
+mod cores;
 mod decisions;
 mod demo;
 mod faults;
