@@ -106,7 +106,11 @@ pub fn ingest_input(
         Change::Ingest(outcome.record.clone()),
         versions,
     )?;
-    tx.put_row_map(&opts.table, done.seq, &std::mem::take(&mut outcome.row_map))?;
+    // An extract read whole to rebuild (a workbook) has no row map: its rows are found by a
+    // full read.
+    if !outcome.row_map.is_empty() {
+        tx.put_row_map(&opts.table, done.seq, &std::mem::take(&mut outcome.row_map))?;
+    }
     tx.commit()?;
     Ok((done, outcome))
 }
