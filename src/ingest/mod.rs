@@ -16,7 +16,7 @@ mod input;
 mod workbook;
 
 pub use input::{DEFAULT_MAX_EVIDENCE, Input, InputOptions};
-pub use workbook::{SheetOptions, sheet_names};
+pub use workbook::{SheetOptions, SheetRows, sheet_names, sheet_rows};
 
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, ChunkId, Digest, VersionHash};

@@ -36,6 +36,61 @@ pub fn sheet_names(input: &Input) -> Result<Vec<String>> {
     Err(no_workbooks(input))
 }
 
+/// The rows of the first sheet of a workbook input whose header (its first filled row) names
+/// every column in `required`: the header, and each data row with its sheet row number. For a
+/// reviewer's answers in a workbook (`decisions apply`); cells are canonical text.
+#[cfg(feature = "xlsx")]
+pub fn sheet_rows(input: &Input, required: &[&str]) -> Result<SheetRows> {
+    use crate::table::workbook::SheetChoice;
+    let bytes = input.read_all()?;
+    let mut book = crate::table::sheet::Workbook::open(&bytes, input.path())?;
+    let names = book.sheet_names();
+    for (i, name) in names.iter().enumerate() {
+        let Ok(table) = book.sheet(&SheetChoice::Index(i as u32), None, false) else {
+            continue;
+        };
+        if !required.iter().all(|r| table.header.iter().any(|h| h == r)) {
+            continue;
+        }
+        let mut rows = Vec::new();
+        table.for_each_row(|r, cells| -> Result<std::ops::ControlFlow<()>> {
+            rows.push((u64::from(r), cells.to_vec()));
+            Ok(std::ops::ControlFlow::Continue(()))
+        })?;
+        return Ok(SheetRows {
+            sheet: name.clone(),
+            header: table.header,
+            rows,
+        });
+    }
+    Err(Error::BadWorkbook {
+        path: input.path().to_path_buf(),
+        problem: format!(
+            "no sheet has a header naming {} (sheets: {})",
+            required.join(" and "),
+            names.join(", ")
+        ),
+        hint: "put the decisions on a sheet whose first row names the columns row, column, action, value and why".into(),
+    })
+}
+
+/// A workbook's rows (this build reads no workbooks).
+#[cfg(not(feature = "xlsx"))]
+pub fn sheet_rows(input: &Input, _required: &[&str]) -> Result<SheetRows> {
+    Err(no_workbooks(input))
+}
+
+/// One sheet's rows as text, from [`sheet_rows`].
+#[derive(Debug, Clone)]
+pub struct SheetRows {
+    /// The sheet's name.
+    pub sheet: String,
+    /// Its header.
+    pub header: Vec<String>,
+    /// Each data row: the 1-based sheet row and its cells.
+    pub rows: Vec<(u64, Vec<String>)>,
+}
+
 #[cfg(not(feature = "xlsx"))]
 fn no_workbooks(input: &Input) -> Error {
     Error::BadWorkbook {

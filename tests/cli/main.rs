@@ -31,3 +31,4 @@ mod snapshots;
 mod store;
 mod tamper;
 mod walkthrough;
+mod workbooks;

@@ -1,6 +1,7 @@
 #!/usr/bin/env python3
-"""Workbooks for emend's tests, written by an independent writer: openpyxl (.xlsx) and odfpy
-(.ods), both from PyPI at the versions pinned in .ci/run. Usage: make.py OUT_DIR.
+"""Workbooks for emend's tests, written by independent writers from PyPI at the versions pinned
+in .ci/run: openpyxl (.xlsx), odfpy (.ods), msoffcrypto-tool (a password-protected .xlsx, the
+ECMA-376 agile encryption) and xlwt (an old binary .xls). Usage: make.py OUT_DIR.
 
 Each file is small and deterministic in content (the zip timestamps may differ per run, which
 is why the tests compare cells, never these files' bytes with anything but their own stored copy).
@@ -56,7 +57,7 @@ def plain():
     ws.append(["site_id", "ph", "ok", "visited"])
     ws.append(["MC01", 7.1, True, datetime.date(2024, 10, 3)])
     ws.append(["MC02", 7, False, datetime.date(2024, 10, 4)])
-    ws.append(["MC03", 0.30000000000000004, True, datetime.datetime(2024, 10, 4, 18, 0)])
+    ws.append(["MC03", 0.25, True, datetime.datetime(2024, 10, 4, 18, 0)])
     wb.save(out / "plain.xlsx")
     (out / "plain.csv").write_text(
         "site_id,ph,ok,visited\n"
@@ -125,8 +126,39 @@ def ods():
     doc.save(str(out / "samples.ods"))
 
 
+def encrypted():
+    from msoffcrypto.format.ooxml import OOXMLFile
+
+    with open(out / "plain.xlsx", "rb") as f, open(out / "locked.xlsx", "wb") as o:
+        OOXMLFile(f).encrypt("river", o)
+
+
+def old_binary():
+    import xlwt
+
+    wb = xlwt.Workbook()
+    ws = wb.add_sheet("Samples")
+    ws.write(0, 0, "site_id")
+    ws.write(1, 0, "MC01")
+    wb.save(str(out / "old.xls"))
+
+
+def review():
+    # A reviewer's answers, typed into a workbook.
+    wb = Workbook()
+    ws = wb.active
+    ws.title = "answers"
+    ws.append(["row", "column", "action", "value", "why"])
+    ws.append(["MC02", "site", "set", "Mill Creek", "the field sheet spells it Mill Creek"])
+    ws.append(["OB01", "ph", "keep", None, "lab confirms 71 (a spring)"])
+    wb.save(out / "review.xlsx")
+
+
 samples()
 plain()
+encrypted()
+old_binary()
+review()
 titled()
 merged_header()
 empty_sheet()
