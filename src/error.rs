@@ -41,6 +41,17 @@ pub enum Error {
         /// What is wrong.
         problem: String,
     },
+    /// A workbook (`.xlsx`, `.ods`) that cannot be read as a table: not a workbook, encrypted,
+    /// an old format, no such sheet, an empty sheet, a header that names no columns.
+    #[error("{path}: {problem}")]
+    BadWorkbook {
+        /// The workbook file.
+        path: PathBuf,
+        /// What is wrong, naming the sheet and cell.
+        problem: String,
+        /// What to do about it.
+        hint: String,
+    },
     /// A path that names a folder where a file is needed (an extract, evidence, rules).
     #[error("{0} is a folder, not a file")]
     NotAFile(PathBuf),
@@ -307,6 +318,7 @@ impl Error {
             Error::BadExtract { .. } => {
                 "nothing was stored; fix the file (or give --delimiter / --encoding) and ingest again".into()
             }
+            Error::BadWorkbook { hint, .. } => hint.clone(),
             Error::BadFile { .. } => "nothing was stored; fix the file or the options and ingest again".into(),
             Error::DuplicateKey { .. } => {
                 "nothing was stored; name a key that identifies each row (--key A --key B for a composite key), or ingest without --key".into()

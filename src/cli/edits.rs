@@ -399,7 +399,8 @@ pub enum DecisionsCommand {
 pub struct ApplyArgs {
     /// Table
     table: String,
-    /// The CSV file: a header naming row, column and value (action and why optional)
+    /// The CSV file or workbook (.xlsx, .ods: the first sheet whose header names row and
+    /// column): a header naming row, column and value (action and why optional)
     file: std::path::PathBuf,
     /// Record it even where a decision changes no cell now
     #[arg(long)]
@@ -425,7 +426,17 @@ pub fn decisions(cx: &CliContext, cmd: DecisionsCommand) -> Result<i32> {
     let mut rec = emend::table::csv::RawRecord::default();
     let mut header: Vec<String> = Vec::new();
     let mut lines: Vec<(u64, Vec<String>)> = Vec::new();
-    loop {
+    // A workbook (issue 18): the first sheet whose header names row and column.
+    let mut head = [0u8; 256];
+    let n_head = std::io::Read::read(&mut file.reader(), &mut head)?;
+    file.rewind()?;
+    let workbook = emend::table::workbook::sniff(&head[..n_head]).is_some();
+    if workbook {
+        let sheet = emend::ingest::sheet_rows(&file, &["row", "column"])?;
+        header = sheet.header;
+        lines = sheet.rows;
+    }
+    while !workbook {
         match reader.read_record(&mut rec) {
             Ok(true) => {}
             Ok(false) => break,

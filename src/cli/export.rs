@@ -56,6 +56,14 @@ pub struct ExportArgs {
     /// counted in a warning
     #[arg(long, conflicts_with = "raw")]
     spreadsheet_safe: bool,
+    /// Also write a workbook for reviewers to FILE (.xlsx): the version with every changed,
+    /// kept or noted cell filled and noted with its fix, reason, signer and commit; a second
+    /// sheet with every decision (as --decisions); columns typed as the profile types them
+    #[arg(long, value_name = "FILE", conflicts_with = "raw")]
+    xlsx: Option<PathBuf>,
+    /// With --xlsx, a third sheet with the raw and new value of every changed cell
+    #[arg(long, requires = "xlsx")]
+    raw_values: bool,
 }
 
 /// Where a command writes a file it was asked for with `-o FILE` (or `--codebook FILE`, ...).
@@ -216,6 +224,47 @@ pub(super) fn warn_formulas(n: u64, defused: bool) -> Result<()> {
     Ok(())
 }
 
+#[cfg(feature = "xlsx")]
+fn write_xlsx(
+    reader: &emend::store::Reader<'_>,
+    v: &emend::query::Version,
+    upto: u64,
+    a: &ExportArgs,
+    path: &std::path::Path,
+) -> Result<()> {
+    let rows = emend::views::audit::decision_rows(reader, &v.table, v.ingest_seq, upto)?;
+    let opts = emend::views::xlsx::XlsxOptions {
+        with_excluded: a.with_excluded,
+        with_distrusted: a.with_distrusted,
+        raw_values: a.raw_values,
+    };
+    let (bytes, done) = emend::views::xlsx::export_xlsx(reader, v, &rows, &opts)?;
+    let mut f = OutputFile::create(path)?;
+    f.write_all(&bytes)?;
+    f.finish()?;
+    writeln!(
+        out::stderr(),
+        "wrote a review workbook of {} rows × {} columns ({} cells marked, {} decisions) to {}",
+        done.n_rows,
+        done.n_columns,
+        done.n_marked,
+        done.n_decisions,
+        path.display()
+    )?;
+    Ok(())
+}
+
+#[cfg(not(feature = "xlsx"))]
+fn write_xlsx(
+    _reader: &emend::store::Reader<'_>,
+    _v: &emend::query::Version,
+    _upto: u64,
+    _a: &ExportArgs,
+    _path: &std::path::Path,
+) -> Result<()> {
+    bail!("this build of emend writes no workbooks (built without the 'xlsx' feature)")
+}
+
 pub fn export(cx: &CliContext, a: ExportArgs) -> Result<i32> {
     let store = cx.store_read()?;
     let reader = store.read();
@@ -251,7 +300,8 @@ pub fn export(cx: &CliContext, a: ExportArgs) -> Result<i32> {
             ))
         }
     };
-    let side_files = a.codebook.is_some() || a.provenance.is_some() || a.decisions.is_some();
+    let side_files =
+        a.codebook.is_some() || a.provenance.is_some() || a.decisions.is_some() || a.xlsx.is_some();
     // A codebook describes a CSV file: without -o, that file is written beside it, under the
     // name the codebook gives it.
     let beside = match (&a.output, &a.codebook) {
@@ -325,6 +375,9 @@ pub fn export(cx: &CliContext, a: ExportArgs) -> Result<i32> {
             rows.len(),
             path.display()
         )?;
+    }
+    if let Some(path) = &a.xlsx {
+        write_xlsx(&reader, &v, upto, &a, path)?;
     }
     warn_formulas(n_formulas.get(), a.spreadsheet_safe)?;
     Ok(0)

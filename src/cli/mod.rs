@@ -15,6 +15,7 @@ mod ingest;
 mod out;
 mod profile;
 mod receipt;
+mod shell;
 mod show;
 mod tag;
 mod trust;
@@ -140,6 +141,10 @@ enum Command {
     Verify(verify::VerifyArgs),
     /// Build a store from bundled demo data and record a cleaning pass
     Demo(demo::DemoArgs),
+    /// Print a shell completion script (bash, zsh, fish, powershell, elvish)
+    Completions(shell::CompletionsArgs),
+    /// Print the manual page (roff; 'emend manual | man -l -' reads it)
+    Manual,
 }
 
 #[derive(Subcommand, Debug)]
@@ -270,5 +275,7 @@ fn dispatch(cx: &CliContext, cli: Cli) -> Result<i32> {
         Command::Evidence(a) => export::evidence(cx, a),
         Command::Receipt(a) => receipt::receipt_cmd(cx, a),
         Command::Demo(a) => demo::run(cx, a),
+        Command::Completions(a) => shell::completions(a),
+        Command::Manual => shell::manual(),
     }
 }

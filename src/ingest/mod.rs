@@ -13,8 +13,10 @@
 //! handle after seeking back, and that pass must hash to the same bytes as the first.
 
 mod input;
+mod workbook;
 
 pub use input::{DEFAULT_MAX_EVIDENCE, Input, InputOptions};
+pub use workbook::{SheetOptions, SheetRows, sheet_names, sheet_rows};
 
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, ChunkId, Digest, VersionHash};
@@ -47,6 +49,8 @@ pub struct IngestOptions {
     /// The largest field (and record) in bytes; [`crate::table::csv::DEFAULT_MAX_FIELD`] when
     /// `None`.
     pub max_field: Option<usize>,
+    /// Which sheet of a workbook, and its header row (issue 18); only for workbooks.
+    pub sheet: SheetOptions,
 }
 
 /// What an ingest stored.
@@ -63,6 +67,8 @@ pub struct IngestOutcome {
     /// The extract's row map ([`crate::table::row_map`]), for the store to keep with the
     /// ingest commit.
     pub row_map: Vec<u8>,
+    /// What a workbook holds that its table cannot (empty for a CSV).
+    pub notes: Vec<crate::table::workbook::WorkbookNote>,
 }
 
 /// Reads the file, feeding the whole-file hash and the piece pipeline.
@@ -216,6 +222,7 @@ pub fn store_extract(
         .max_field
         .unwrap_or(crate::table::csv::DEFAULT_MAX_FIELD);
     // Peek at the start for the delimiter and the header's shape, then rewind.
+    input.rewind()?;
     let mut head = vec![0u8; 64 * 1024];
     let n_head = read_full(&mut input.reader(), &mut head).map_err(|e| Error::io(path, e))?;
     head.truncate(n_head);
@@ -224,6 +231,16 @@ pub fn store_extract(
             path: path.to_path_buf(),
             problem: "the file is empty".into(),
         });
+    }
+    // A workbook is read by its own path (issue 18); its first bytes say it is one.
+    if crate::table::workbook::sniff(&head).is_some() {
+        return workbook::store_workbook(tx, input, opts);
+    }
+    if opts.sheet != SheetOptions::default() {
+        return Err(Error::Invalid(format!(
+            "{} is not a workbook: --sheet and --header-row apply to .xlsx and .ods files only",
+            path.display()
+        )));
     }
     let delimiter = opts
         .delimiter
@@ -474,6 +491,7 @@ pub fn store_extract(
         blank_lines,
         new_bytes,
         row_map,
+        notes: Vec::new(),
     })
 }
 

@@ -60,9 +60,37 @@ pub fn ingest_input(
     message: &str,
     ctx: &CommitContext<'_>,
 ) -> Result<(CommitOutcome, IngestOutcome)> {
+    let mut done = ingest_each(store, input, std::slice::from_ref(opts), message, ctx)?;
+    Ok(done.pop().expect("one ingest was asked for"))
+}
+
+/// Ingest one input several times in one transaction, one signed commit each: the sheets of a
+/// workbook into one table each (`ingest --sheets`). All land, or none does.
+pub fn ingest_each(
+    store: &mut Store,
+    input: &mut Input,
+    each: &[IngestOptions],
+    message: &str,
+    ctx: &CommitContext<'_>,
+) -> Result<Vec<(CommitOutcome, IngestOutcome)>> {
+    let tx = store.transaction()?;
+    let mut out = Vec::with_capacity(each.len());
+    for opts in each {
+        out.push(ingest_in(&tx, input, opts, message, ctx)?);
+    }
+    tx.commit()?;
+    Ok(out)
+}
+
+fn ingest_in(
+    tx: &crate::store::WriteTx<'_>,
+    input: &mut Input,
+    opts: &IngestOptions,
+    message: &str,
+    ctx: &CommitContext<'_>,
+) -> Result<(CommitOutcome, IngestOutcome)> {
     check_table_name(&opts.table)?;
     let mut opts = opts.clone();
-    let tx = store.transaction()?;
     {
         let reader = tx.read();
         if reader.pending()?.iter().any(|p| p.fix.table == opts.table) {
@@ -78,7 +106,7 @@ pub fn ingest_input(
             let _ = extract;
         }
     }
-    let mut outcome = crate::ingest::store_extract(&tx, input, &opts)?;
+    let mut outcome = crate::ingest::store_extract(tx, input, &opts)?;
     if let Some((_, latest)) = tx.read().extract_at(&opts.table, u64::MAX)?
         && latest == outcome.record.extract
     {
@@ -100,7 +128,7 @@ pub fn ingest_input(
         n_rows: outcome.record.n_rows,
     }];
     let done = seal(
-        &tx,
+        tx,
         ctx,
         &message,
         Change::Ingest(outcome.record.clone()),
@@ -111,6 +139,5 @@ pub fn ingest_input(
     if !outcome.row_map.is_empty() {
         tx.put_row_map(&opts.table, done.seq, &std::mem::take(&mut outcome.row_map))?;
     }
-    tx.commit()?;
     Ok((done, outcome))
 }

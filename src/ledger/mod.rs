@@ -28,7 +28,7 @@ pub use fixes::{
     Attachments, FixRequest, PREVIEW_SAMPLES, Preview, Recorded, commit_pending, committed_fix,
     discard, discard_one, record_fix, record_fixes, store_bytes, store_file,
 };
-pub use ingest::{check_table_name, ingest, ingest_input, spool_beside};
+pub use ingest::{check_table_name, ingest, ingest_each, ingest_input, spool_beside};
 pub use seal::{CommitContext, CommitOutcome, seal};
 pub use tag::{check_tag_name, tag};
 pub use trust::{revoke_key, trust, trust_key};

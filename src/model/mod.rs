@@ -90,6 +90,31 @@ pub enum TextEncoding {
     Windows1252,
     /// ISO 8859-1: each byte is the code point of the same number.
     Latin1,
+    /// Not text at all: a workbook, whose cells are one sheet's values as canonical text
+    /// (`table::workbook`). Added at the end (issue 18), so every earlier body still decodes.
+    Workbook(WorkbookSheet),
+}
+
+/// Which workbook file format an extract is.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub enum WorkbookFormat {
+    /// Office Open XML (`.xlsx`).
+    Xlsx,
+    /// OpenDocument spreadsheet (`.ods`).
+    Ods,
+}
+
+/// The sheet of a workbook extract that is the table, and where its header is: what a rebuild
+/// needs to read the same cells back from the stored bytes.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+pub struct WorkbookSheet {
+    /// The file format.
+    pub format: WorkbookFormat,
+    /// The sheet's 0-based position among the workbook's sheets (the bytes never change, so
+    /// the position always names the same sheet).
+    pub sheet: u32,
+    /// The header's 1-based row number in the sheet.
+    pub header_row: u32,
 }
 
 impl TextEncoding {
@@ -109,6 +134,14 @@ impl TextEncoding {
             TextEncoding::Utf8 => "utf-8",
             TextEncoding::Windows1252 => "windows-1252",
             TextEncoding::Latin1 => "latin-1",
+            TextEncoding::Workbook(WorkbookSheet {
+                format: WorkbookFormat::Xlsx,
+                ..
+            }) => "xlsx",
+            TextEncoding::Workbook(WorkbookSheet {
+                format: WorkbookFormat::Ods,
+                ..
+            }) => "ods",
         }
     }
 }

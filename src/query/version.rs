@@ -160,6 +160,9 @@ impl Version {
     where
         F: FnMut(&RowView<'_>) -> Result<ControlFlow<()>>,
     {
+        if let crate::model::TextEncoding::Workbook(sheet) = self.def.dialect.encoding {
+            return self.for_each_sheet_row(reader, sheet, f);
+        }
         let blob = reader.open_blob(&self.def.extract)?;
         // A stored extract met the limits in force when it was ingested (which may have been
         // raised then), so reading it back applies none.
@@ -421,6 +424,92 @@ impl Version {
             map.row(pos, rec.offset, rec.line, h);
         }
         Ok(map.finish(csv.offset()))
+    }
+
+    /// [`Version::for_each_row`] for a workbook extract: the stored bytes read whole and the
+    /// recorded sheet read through `table::sheet`, exactly as ingest read it (issue 18).
+    #[cfg(feature = "xlsx")]
+    fn for_each_sheet_row<F>(
+        &self,
+        reader: &Reader<'_>,
+        sheet: crate::model::WorkbookSheet,
+        mut f: F,
+    ) -> Result<()>
+    where
+        F: FnMut(&RowView<'_>) -> Result<ControlFlow<()>>,
+    {
+        let place_text = format!("stored extract {}", self.def.extract.short());
+        let mut bytes = Vec::with_capacity(usize::try_from(self.def.n_bytes).unwrap_or(0));
+        std::io::Read::read_to_end(&mut reader.open_blob(&self.def.extract)?, &mut bytes).map_err(
+            // A damaged chunk arrives wrapped in an io error: hand the store's own error on.
+            |io| match io.into_inner().map(|inner| inner.downcast::<Error>()) {
+                Some(Ok(e)) => *e,
+                _ => Error::Corrupt(format!("{place_text} could not be read")),
+            },
+        )?;
+        let place =
+            std::path::PathBuf::from(format!("stored extract {}", self.def.extract.short()));
+        let mut book = crate::table::sheet::Workbook::open(&bytes, &place)
+            .map_err(|e| Error::Corrupt(format!("{e}")))?;
+        let table = book
+            .sheet(
+                &crate::table::workbook::SheetChoice::Index(sheet.sheet),
+                Some(sheet.header_row),
+                false,
+            )
+            .map_err(|e| Error::Corrupt(format!("{e}")))?;
+        if table.header != self.def.header {
+            return Err(Error::Corrupt(format!(
+                "{} no longer has the header its ingest recorded",
+                place.display()
+            )));
+        }
+        let row_ids = RowIdBuilder::new(
+            self.def
+                .key
+                .iter()
+                .map(|k| self.col_idx(k))
+                .collect::<Result<_>>()?,
+        );
+        let mut cells: Vec<Option<String>> = vec![None; self.def.header.len()];
+        let mut id = RowId(String::new());
+        let mut pos = 0u64;
+        table.for_each_row(|_, text| -> Result<ControlFlow<()>> {
+            pos += 1;
+            row_ids.build_into(pos, text, &mut id.0);
+            for (cell, t) in cells.iter_mut().zip(text) {
+                *cell = Some(t.clone());
+            }
+            if let Some(list) = self.edits.get(&id.0) {
+                for (col, value) in list {
+                    cells[*col] = value.clone();
+                }
+            }
+            f(&RowView {
+                pos,
+                id: &id,
+                cells: &cells,
+                excluded: self.excluded.contains(&id.0),
+            })
+        })?;
+        Ok(())
+    }
+
+    /// A workbook extract in a build that reads no workbooks.
+    #[cfg(not(feature = "xlsx"))]
+    fn for_each_sheet_row<F>(
+        &self,
+        _reader: &Reader<'_>,
+        _sheet: crate::model::WorkbookSheet,
+        _f: F,
+    ) -> Result<()>
+    where
+        F: FnMut(&RowView<'_>) -> Result<ControlFlow<()>>,
+    {
+        Err(Error::Invalid(format!(
+            "table '{}' was ingested from a workbook, which this build (without the 'xlsx' feature) cannot read",
+            self.table
+        )))
     }
 
     /// The canonical hash of this version and its row count.

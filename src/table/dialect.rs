@@ -11,7 +11,8 @@ use std::path::Path;
 pub fn decode_into(bytes: &[u8], encoding: TextEncoding, out: &mut String) -> Result<(), usize> {
     out.clear();
     match encoding {
-        TextEncoding::Utf8 => match std::str::from_utf8(bytes) {
+        // A workbook's cells are text already (`table::workbook`); nothing decodes its bytes.
+        TextEncoding::Utf8 | TextEncoding::Workbook(_) => match std::str::from_utf8(bytes) {
             Ok(s) => {
                 out.push_str(s);
                 Ok(())

@@ -1,4 +1,5 @@
-//! Adapters that fill the pure renderers from a version: export (CSV and raw bytes), the profile,
+//! Adapters that fill the pure renderers from a version: export (CSV and raw bytes; `xlsx`, the
+//! review workbook), the profile,
 //! the rules check and the audit report with its codebook, provenance and decision views.
 //!
 //! Read-only, like `query`, on which they build; the computations and the rendering live in
@@ -9,5 +10,7 @@ pub mod audit;
 pub mod check;
 pub mod export;
 pub mod profiling;
+#[cfg(feature = "xlsx")]
+pub mod xlsx;
 
 pub use check::check_version;

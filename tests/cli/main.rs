@@ -32,3 +32,4 @@ mod snapshots;
 mod store;
 mod tamper;
 mod walkthrough;
+mod workbooks;
