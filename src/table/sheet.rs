@@ -971,15 +971,16 @@ mod tests {
         check(Data::Error(calamine::CellErrorType::NA), "#N/A");
         check(Data::DateTimeIso("2024-10-03".into()), "2024-10-03");
         use calamine::{ExcelDateTime, ExcelDateTimeType::*};
-        // Serial 45568 is 2024-10-04 in the 1900 date system (ECMA-376 Part 1, 18.17.4.1:
-        // day 1 is 1900-01-01 and the nonexistent 1900-02-29 is counted).
+        // Serial 45568 is 2024-10-03 in the 1900 date system (ECMA-376 Part 1, 18.17.4.1:
+        // day 1 is 1900-01-01 and the nonexistent 1900-02-29 is counted, so later serials
+        // count from 1899-12-30; Python's `date(1899, 12, 30) + timedelta(45568)` agrees).
         check(
             Data::DateTime(ExcelDateTime::new(45568.0, DateTime, false)),
-            "2024-10-04",
+            "2024-10-03",
         );
         check(
             Data::DateTime(ExcelDateTime::new(45568.75, DateTime, false)),
-            "2024-10-04T18:00:00",
+            "2024-10-03T18:00:00",
         );
         // In the 1904 system day 0 is 1904-01-01 (ECMA-376 Part 1, 18.17.4.1).
         check(
