@@ -436,7 +436,11 @@ pub fn decisions(cx: &CliContext, cmd: DecisionsCommand) -> Result<i32> {
         header = sheet.header;
         lines = sheet.rows;
     }
-    while !workbook {
+    // A workbook's rows came from its sheet above; a CSV file is read record by record.
+    loop {
+        if workbook {
+            break;
+        }
         match reader.read_record(&mut rec) {
             Ok(true) => {}
             Ok(false) => break,

@@ -61,7 +61,7 @@ pub fn cell_text(value: &Data, out: &mut String) {
             let has_time = (h, mi, s, ms) != (0, 0, 0, 0);
             // A serial below one day is a time of day with no date (Excel's number formats
             // such as `h:mm` on 0.5).
-            if serial < 1.0 && serial >= 0.0 {
+            if (0.0..1.0).contains(&serial) {
                 time_text(h, mi, s, ms, out);
             } else {
                 let _ = write!(out, "{y:04}-{mo:02}-{day:02}");
@@ -109,7 +109,7 @@ fn duration_text(days: f64, out: &mut String) {
 }
 
 enum Book<'a> {
-    Xlsx(Xlsx<Cursor<&'a [u8]>>),
+    Xlsx(Box<Xlsx<Cursor<&'a [u8]>>>),
     Ods(Ods<Cursor<&'a [u8]>>),
 }
 
@@ -151,7 +151,7 @@ impl<'a> Workbook<'a> {
             )?),
             Sniffed::Xlsx | Sniffed::Compound => {
                 match calamine::open_workbook_from_rs::<Xlsx<_>, _>(cursor) {
-                    Ok(b) => Book::Xlsx(b),
+                    Ok(b) => Book::Xlsx(Box::new(b)),
                     Err(calamine::XlsxError::Password) => {
                         return Err(bad(
                             path,
