@@ -41,6 +41,7 @@ fuzz_target!(|data: &[u8]| {
         delimiter: None,
         encoding: None,
         max_field: None,
+        ..Default::default()
     };
     match ingest(&mut store, &file, &opts, "", &ctx) {
         Ok((done, outcome)) => {

@@ -38,6 +38,7 @@ fn template() -> &'static Vec<u8> {
             delimiter: None,
             encoding: None,
             max_field: None,
+            ..Default::default()
         };
         ingest(&mut store, &file, &opts, "", &ctx).expect("ingest");
         let path = store.path().to_path_buf();
