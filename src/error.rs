@@ -239,6 +239,51 @@ pub enum Error {
     /// A signing key problem.
     #[error("{0}")]
     Key(String),
+    /// The team store's server cannot be reached, or the connection broke.
+    #[error("cannot reach the team store {server}: {problem}")]
+    TeamUnreachable {
+        /// The server, as the user named it (no password).
+        server: String,
+        /// What went wrong.
+        problem: String,
+    },
+    /// The server refused what this role tried (PostgreSQL's permissions or emend's triggers).
+    #[error("the team store {server} refused: {problem}")]
+    TeamRefused {
+        /// The server, as the user named it (no password).
+        server: String,
+        /// What PostgreSQL said.
+        problem: String,
+    },
+    /// Someone published since this store last heard from the team.
+    #[error(
+        "the team moved on: the team store's head is commit {theirs}, and your commits follow commit {ours}"
+    )]
+    TeamMovedOn {
+        /// The last team commit this store knows.
+        ours: u64,
+        /// The team's head now.
+        theirs: u64,
+    },
+    /// The team store's history and this store's disagree on a commit both hold.
+    #[error("the team store {server} and this store disagree: {problem}")]
+    TeamDiverged {
+        /// The server, as the user named it (no password).
+        server: String,
+        /// Which commit, and how.
+        problem: String,
+    },
+    /// The command needs a store that follows a team store.
+    #[error("this store follows no team store")]
+    NoTeam,
+    /// The server holds no team store, or another program's tables.
+    #[error("{server}: {problem}")]
+    TeamSchema {
+        /// The server, as the user named it (no password).
+        server: String,
+        /// What is wrong.
+        problem: String,
+    },
     /// A SQLite failure that the store layer did not map to a domain error.
     #[error("database error: {0}")]
     Sqlite(rusqlite::Error),
@@ -312,6 +357,12 @@ impl Error {
             Error::EmptyReason => "say why, e.g. --why \"lab sheet says 7.1\"".into(),
             Error::NothingPending => "record a fix first (set, recode, missing, tidy, exclude, keep, note, …; emend --help lists them)".into(),
             Error::Busy => "wait for the other process to finish and try again".into(),
+            Error::TeamUnreachable { .. } => "check the address, that the server is running and that it lets you in (a password comes from the address or PGPASSWORD); every read command and every fix still works without the server".into(),
+            Error::TeamRefused { .. } => "nothing was changed on the server; your role may only read (auditors), or lacks a grant: docs/team.md shows the roles an administrator creates".into(),
+            Error::TeamMovedOn { .. } => "run 'emend receive': it brings the team's commits and replays your unpublished fixes on top, for you to review ('emend status') and commit again; then publish".into(),
+            Error::TeamDiverged { .. } => "nothing was changed here; run 'emend verify --team ADDRESS' and tell whoever runs the team store: a history that was cut or rewritten on the server is not followed".into(),
+            Error::NoTeam => "make a store that follows a team store with 'emend join ADDRESS' in a new folder, or start a team store from this one with 'emend init --team ADDRESS'".into(),
+            Error::TeamSchema { .. } => "a team store is made by 'emend init --team ADDRESS' (docs/team.md)".into(),
             Error::Corrupt(_) => "run 'emend verify' for a full list of problems".into(),
             Error::Tampered(_) => "nothing was shown or written from it; 'emend verify' lists every problem, and 'emend verify --receipt FILE' shows whether history was cut. Keep this file for the audit and work from a copy you trust".into(),
             Error::ForeignSchema { .. } => "a trigger or view in the store file could change what emend writes or shows, so nothing was run; keep the file for the audit and work from a copy you trust ('emend verify' lists what else changed)".into(),

@@ -23,6 +23,8 @@ pub mod report;
 pub mod signing;
 pub mod store;
 pub mod table;
+#[cfg(feature = "team")]
+pub mod team;
 pub mod values;
 pub mod views;
 

@@ -18,6 +18,8 @@ mod receipt;
 mod shell;
 mod show;
 mod tag;
+#[cfg(feature = "team")]
+mod team;
 mod trust;
 mod verify;
 mod why;
@@ -61,8 +63,9 @@ struct Cli {
 
 #[derive(Subcommand, Debug)]
 enum Command {
-    /// Create a store in the current folder (.emend/store.sqlite)
-    Init,
+    /// Create a store in the current folder (.emend/store.sqlite), or with --team a team store
+    /// on a PostgreSQL server that this store publishes to
+    Init(InitArgs),
     /// Make or show your signing identity
     #[command(subcommand)]
     Id(IdCommand),
@@ -139,6 +142,15 @@ enum Command {
     Trust(trust::TrustArgs),
     /// Check every hash, signature, table version and index row
     Verify(verify::VerifyArgs),
+    /// Make a store in the current folder that follows a team store (docs/team.md)
+    #[cfg(feature = "team")]
+    Join(team::JoinArgs),
+    /// Send your commits to the team store; refused if the team moved on (then 'receive')
+    #[cfg(feature = "team")]
+    Publish,
+    /// Bring the team's commits; your unpublished work is replayed on top for review
+    #[cfg(feature = "team")]
+    Receive,
     /// Build a store from bundled demo data and record a cleaning pass
     Demo(demo::DemoArgs),
     /// Print a shell completion script (bash, zsh, fish, powershell, elvish)
@@ -163,6 +175,33 @@ struct IdShowArgs {
     /// Print JSON (the shape is documented in docs/json.md)
     #[arg(long)]
     json: bool,
+}
+
+#[derive(Args, Debug)]
+struct InitArgs {
+    /// Also make a team store on this PostgreSQL database (postgres://USER@HOST/DATABASE,
+    /// empty, USER its owner) and publish this store's history to it
+    #[cfg(feature = "team")]
+    #[arg(long, value_name = "ADDRESS")]
+    team: Option<String>,
+    /// The role whose members may publish (made by an administrator, docs/team.md)
+    #[cfg(feature = "team")]
+    #[arg(
+        long,
+        value_name = "ROLE",
+        default_value = "emend_writer",
+        requires = "team"
+    )]
+    writers: String,
+    /// The role whose members may only read: verify, join, receive, export, report
+    #[cfg(feature = "team")]
+    #[arg(
+        long,
+        value_name = "ROLE",
+        default_value = "emend_auditor",
+        requires = "team"
+    )]
+    auditors: String,
 }
 
 #[derive(Args, Debug)]
@@ -222,7 +261,7 @@ fn run(cli: Cli) -> Result<i32> {
             | Command::Resolve(_)
             | Command::Withdraw(_)
             | Command::Decisions(_)
-    );
+    ) || receives(&cli.command);
     let before = if may_commit {
         receipt::head_before(cx)
     } else {
@@ -235,9 +274,31 @@ fn run(cli: Cli) -> Result<i32> {
     Ok(code)
 }
 
+/// Whether the command may sign commits of its own while receiving (replayed ingests).
+fn receives(command: &Command) -> bool {
+    #[cfg(feature = "team")]
+    if matches!(command, Command::Receive) {
+        return true;
+    }
+    let _ = command;
+    false
+}
+
 fn dispatch(cx: &CliContext, cli: Cli) -> Result<i32> {
     match cli.command {
-        Command::Init => ingest::init(cx),
+        #[cfg(feature = "team")]
+        Command::Init(InitArgs {
+            team: Some(address),
+            writers,
+            auditors,
+        }) => team::init_team(cx, &address, &writers, &auditors),
+        Command::Init(_) => ingest::init(cx),
+        #[cfg(feature = "team")]
+        Command::Join(a) => team::join(cx, a),
+        #[cfg(feature = "team")]
+        Command::Publish => team::publish(cx),
+        #[cfg(feature = "team")]
+        Command::Receive => team::receive(cx),
         Command::Id(IdCommand::New(a)) => id::new(cx, a),
         Command::Id(IdCommand::Show(f)) => id::show(cx, f.json, f.key),
         Command::Ingest(a) => ingest::ingest(cx, a),

@@ -20,6 +20,11 @@ pub struct VerifyArgs {
     /// hold each receipted commit at its number, and its history must extend it
     #[arg(long, value_name = "FILE", num_args = 1..)]
     receipt: Vec<PathBuf>,
+    /// Check a team store on its server instead of this folder's store (read only: an
+    /// auditor's role is enough); its published receipts are checked too
+    #[cfg(feature = "team")]
+    #[arg(long, value_name = "ADDRESS")]
+    team: Option<String>,
     /// Print JSON (docs/json.md)
     #[arg(long)]
     json: bool,
@@ -38,19 +43,23 @@ struct ReceiptLine {
 fn check_receipts(
     reader: &emend::store::Reader<'_>,
     files: &[PathBuf],
+    extra: Vec<(String, String)>,
     report: &mut emend::query::VerifyReport,
 ) -> Result<Vec<ReceiptLine>> {
     use emend::query::receipt::{Standing, check, parse_all};
     let mut lines = Vec::new();
+    let mut sources = Vec::new();
     for file in files {
         let text = std::fs::read_to_string(file)
             .with_context(|| format!("reading the receipts in {}", file.display()))?;
-        let name = file.display().to_string();
+        sources.push((file.display().to_string(), text));
+    }
+    sources.extend(extra);
+    for (name, text) in sources {
         let parsed = parse_all(&text);
         if parsed.is_empty() {
             bail!(
-                "{} holds no receipt (a receipt starts with the line '{}')",
-                file.display(),
+                "{name} holds no receipt (a receipt starts with the line '{}')",
                 emend::query::receipt::RECEIPT_HEADER
             );
         }
@@ -159,14 +168,50 @@ fn read_keys(path: &PathBuf) -> Result<Vec<[u8; 32]>> {
 pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
     // A store holding schema objects emend never made is refused by every other command;
     // verify opens it for reading only, runs nothing in it, and lists them with the rest.
-    let store = match cx.store_read_unchecked() {
-        Err(e) => match e.downcast_ref::<emend::Error>() {
-            Some(emend::Error::ForeignSchema { path, .. }) => {
-                emend::store::Store::open_for_audit(path)?
+    // A team store is copied (on one snapshot, believing nothing) into a temporary store,
+    // which the same checks then read; what only the server can get wrong is added after.
+    #[cfg(feature = "team")]
+    let audit = match &a.team {
+        Some(address) => {
+            let dir = tempfile::tempdir().context("making a folder for the audit copy")?;
+            let mut server = super::team::connect(address)?;
+            let copy = emend::team::audit::copy_for_audit(
+                &mut server,
+                &dir.path().join("audit.sqlite"),
+                &cx.now()?,
+            )?;
+            if !a.json {
+                writeln!(
+                    out::stdout(),
+                    "team store {}: head commit {}, copied on one snapshot for the audit",
+                    out::clean(server.shown()),
+                    copy.head
+                )?;
             }
-            _ => return Err(e),
-        },
-        Ok(s) => s,
+            let receipts: Vec<(String, String)> = copy
+                .receipts
+                .iter()
+                .map(|(seq, text, by)| {
+                    (
+                        format!("team store receipt of commit {seq} published by {by}"),
+                        text.clone(),
+                    )
+                })
+                .collect();
+            Some((dir, copy.store, copy.problems, receipts))
+        }
+        None => None,
+    };
+    #[cfg(not(feature = "team"))]
+    let audit: Option<(
+        tempfile::TempDir,
+        emend::store::Store,
+        Vec<emend::query::verify::Problem>,
+        Vec<(String, String)>,
+    )> = None;
+    let (store, team_problems, team_receipts, _audit_dir) = match audit {
+        Some((dir, store, problems, receipts)) => (store, problems, receipts, Some(dir)),
+        None => (local_store(cx)?, Vec::new(), Vec::new(), None),
     };
     let trust = match &a.trust {
         Some(p) => Trust::Keys(read_keys(p)?),
@@ -180,7 +225,30 @@ pub fn verify(cx: &CliContext, a: VerifyArgs) -> Result<i32> {
     };
     // One snapshot, so commits landing meanwhile from another process are not half-seen.
     let mut report = store.snapshot(|r| run_verify(r, &trust, &mut progress))?;
-    let receipts = check_receipts(&store.read(), &a.receipt, &mut report)?;
+    report.problems.extend(team_problems);
+    let receipts = check_receipts(&store.read(), &a.receipt, team_receipts, &mut report)?;
+    print_report(a, report, receipts, show_progress)
+}
+
+/// This folder's store, opened read only without the read check (verify is the check).
+fn local_store(cx: &CliContext) -> Result<emend::store::Store> {
+    Ok(match cx.store_read_unchecked() {
+        Err(e) => match e.downcast_ref::<emend::Error>() {
+            Some(emend::Error::ForeignSchema { path, .. }) => {
+                emend::store::Store::open_for_audit(path)?
+            }
+            _ => return Err(e),
+        },
+        Ok(s) => s,
+    })
+}
+
+fn print_report(
+    a: VerifyArgs,
+    report: emend::query::VerifyReport,
+    receipts: Vec<ReceiptLine>,
+    show_progress: bool,
+) -> Result<i32> {
     if show_progress {
         let _ = write!(anstream::stderr(), "\r{}\r", " ".repeat(40));
     }

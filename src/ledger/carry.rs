@@ -241,13 +241,35 @@ pub fn carry(
         }
     }
 
-    let new_version = Version::load(&reader, table, head, false)?;
+    let mut out = replay(&reader, table, fixes, prev_seq, new_seq, head)?;
+    stage(&tx, &out, now, by, |c| c.note())?;
+    tx.commit()?;
+    out.extend(skipped);
+    out.sort_by_key(|c| c.fix.origins.last().map(|o| (o.seq, o.fix_idx)));
+    Ok(out)
+}
+
+/// Replay `fixes`, made on the extract of `table` ingested by commit `prev_seq`, against the
+/// version of `table` at `head`, whose extract commit `new_seq` ingested (the same one when
+/// `prev_seq == new_seq`): each gets an outcome, and those that apply are ready to stage.
+/// Nothing is written. `carry` replays a previous extract's fixes; a team store's `receive`
+/// replays unpublished fixes onto the team's head.
+pub(crate) fn replay(
+    reader: &crate::store::Reader<'_>,
+    table: &str,
+    fixes: Vec<(Fix, Vec<crate::model::CellEdit>)>,
+    prev_seq: u64,
+    new_seq: u64,
+    head: u64,
+) -> Result<Vec<Carried>> {
+    let new_version = Version::load(reader, table, head, false)?;
     let keyless = new_version.def.key.is_empty();
-    // For tables without a key, old positions map to new ones through the row alignment.
-    let position_map = if keyless {
-        let old_raw = Version::load(&reader, table, prev_seq, true)?;
-        let new_raw = Version::load(&reader, table, new_seq, true)?;
-        Some(align_positions(&reader, &old_raw, &new_raw)?)
+    // For tables without a key, old positions map to new ones through the row alignment (on
+    // the same extract they are the same).
+    let position_map = if keyless && prev_seq != new_seq {
+        let old_raw = Version::load(reader, table, prev_seq, true)?;
+        let new_raw = Version::load(reader, table, new_seq, true)?;
+        Some(align_positions(reader, &old_raw, &new_raw)?)
     } else {
         None
     };
@@ -283,7 +305,7 @@ pub fn carry(
     let col_of = |c: &str| new_version.col_idx(c).ok();
     // Per fix: how it applies in the new extract (its column there, the values it looks for).
     let header = new_version.header().to_vec();
-    let book = RuleBook::load(&reader, fixes.iter().map(|(fix, _)| fix))?;
+    let book = RuleBook::load(reader, fixes.iter().map(|(fix, _)| fix))?;
     let mut appliers: Vec<FixApplier<'_>> = fixes
         .iter()
         .map(|(fix, _)| FixApplier::lenient(fix, &header, &book))
@@ -291,7 +313,7 @@ pub fn carry(
     let mut rows: HashMap<String, Vec<Option<String>>> = HashMap::new();
     // Per value-level fix: (cells matching now, rows matching now).
     let mut matches: Vec<(u64, HashSet<String>)> = vec![(0, HashSet::new()); fixes.len()];
-    new_version.for_each_row(&reader, |r| {
+    new_version.for_each_row(reader, |r| {
         if wanted.contains(r.id.as_str()) {
             rows.insert(r.id.0.clone(), r.cells.to_vec());
         }
@@ -458,10 +480,22 @@ pub fn carry(
             new_matches,
         });
     }
-    for c in &out {
+    Ok(out)
+}
+
+/// Stage what [`replay`] found: applied fixes as pending (with `note` for `status`), conflicts
+/// as open decisions.
+pub(crate) fn stage(
+    tx: &crate::store::WriteTx<'_>,
+    out: &[Carried],
+    now: &str,
+    by: Option<&crate::model::Recorder>,
+    note: impl Fn(&Carried) -> String,
+) -> Result<()> {
+    for c in out {
         match c.outcome {
             Outcome::Applied => {
-                tx.add_pending(&c.fix, Some(&c.note()), now, by)?;
+                tx.add_pending(&c.fix, Some(&note(c)), now, by)?;
             }
             // A conflict is a decision owed: kept open until resolved or deferred.
             Outcome::Conflict => {
@@ -485,10 +519,7 @@ pub fn carry(
             _ => {}
         }
     }
-    tx.commit()?;
-    out.extend(skipped);
-    out.sort_by_key(|c| c.fix.origins.last().map(|o| (o.seq, o.fix_idx)));
-    Ok(out)
+    Ok(())
 }
 
 /// How the reason of a fix that answers a carried conflict begins: the reason is the answer's,

@@ -18,7 +18,9 @@ mod write;
 pub use blob::{BlobReader, ChunkCache};
 pub use codec::{Codec, DeltaBase, EncodedPiece, PIECE_SIZE, PieceEncoder};
 pub use index::{CellEditRow, IndexRows, MarkRow};
-pub use read::{OpenConflict, PendingFix, Reader, SignerRecord, StoredCommit, TrustList, row_text};
+pub use read::{
+    OpenConflict, PendingFix, Reader, SignerRecord, StoredChunk, StoredCommit, TrustList, row_text,
+};
 pub use write::WriteTx;
 use write::sql_err_busy;
 
@@ -295,6 +297,17 @@ impl Store {
         }
         let folder = dir.join(STORE_DIR);
         std::fs::create_dir_all(&folder).map_err(|e| Error::io(&folder, e))?;
+        Store::create_at(&path, now)
+    }
+
+    /// Create a new, empty store file at `path` (its folder must exist). Fails when a file is
+    /// there already. A team store's `receive` builds a replacement store this way beside the
+    /// one it replaces.
+    pub fn create_at(path: &Path, now: &str) -> Result<Store> {
+        if path.exists() {
+            return Err(Error::StoreExists(path.to_path_buf()));
+        }
+        let path = path.to_path_buf();
         let mut conn = Connection::open_with_flags(
             &path,
             OpenFlags::SQLITE_OPEN_READ_WRITE
@@ -314,6 +327,34 @@ impl Store {
         tx.commit()?;
         Store::configure(&conn)?;
         Ok(Store { conn, path })
+    }
+
+    /// Copy every stored piece and file of the store at `other` into this one (those already
+    /// here are kept), in the order `other` stored them, in one transaction. Commits are not
+    /// copied: they are appended one by one, with their index rows, by the caller.
+    pub fn copy_objects_from(&mut self, other: &Path) -> Result<()> {
+        let name = other.to_string_lossy().into_owned();
+        self.conn
+            .execute("ATTACH DATABASE ?1 AS other", params![name])?;
+        let copied = (|| -> Result<()> {
+            let tx = self
+                .conn
+                .transaction_with_behavior(TransactionBehavior::Immediate)?;
+            tx.execute_batch(
+                "INSERT OR IGNORE INTO main.blob (id, n_bytes, n_chunks)
+                     SELECT id, n_bytes, n_chunks FROM other.blob ORDER BY rowid;
+                 INSERT OR IGNORE INTO main.chunk (id, raw_len, codec, base_blob, base_lo, base_hi, data)
+                     SELECT id, raw_len, codec, base_blob, base_lo, base_hi, data FROM other.chunk;
+                 INSERT OR IGNORE INTO main.blob_chunk (blob, idx, chunk)
+                     SELECT blob, idx, chunk FROM other.blob_chunk;",
+            )?;
+            tx.commit()?;
+            Ok(())
+        })();
+        let detached = self.conn.execute("DETACH DATABASE other", []);
+        copied?;
+        detached?;
+        Ok(())
     }
 
     /// Find the store for `start` by walking up its folders, and open it for writing.

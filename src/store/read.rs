@@ -26,6 +26,22 @@ pub struct StoredCommit {
     pub signature: Vec<u8>,
 }
 
+/// A stored piece exactly as the store holds it (compressed, with its reference when it is a
+/// delta): what a team store sends and receives, so both ends hold the same bytes.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct StoredChunk {
+    /// BLAKE3 of the uncompressed bytes.
+    pub id: ChunkId,
+    /// Uncompressed length.
+    pub raw_len: u64,
+    /// The codec number (see [`crate::store::Codec`]).
+    pub codec: i64,
+    /// The reference of a delta: an earlier stored file and a byte range of it.
+    pub base: Option<(BlobId, u64, u64)>,
+    /// The stored (compressed) bytes.
+    pub data: Vec<u8>,
+}
+
 /// A fix waiting to be committed.
 #[derive(Debug, Clone)]
 pub struct PendingFix {
@@ -573,6 +589,55 @@ impl<'a> Reader<'a> {
         let mut stmt = self.conn.prepare("SELECT id FROM chunk ORDER BY id")?;
         let rows = stmt.query_map([], |r| Ok(ChunkId::from_bytes(blob32(r, 0)?)))?;
         Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
+    /// A piece as stored (compressed), for sending it elsewhere unchanged.
+    pub fn stored_chunk(&self, id: &ChunkId) -> Result<Option<StoredChunk>> {
+        type Row = (i64, i64, Option<Vec<u8>>, Option<i64>, Option<i64>, Vec<u8>);
+        let row: Option<Row> = self
+            .conn
+            .prepare_cached(
+                "SELECT raw_len, codec, base_blob, base_lo, base_hi, data FROM chunk WHERE id = ?1",
+            )?
+            .query_row(params![id.as_bytes()], |r| {
+                Ok((
+                    r.get(0)?,
+                    r.get(1)?,
+                    r.get(2)?,
+                    r.get(3)?,
+                    r.get(4)?,
+                    r.get(5)?,
+                ))
+            })
+            .optional()?;
+        let Some((raw_len, codec, base_blob, lo, hi, data)) = row else {
+            return Ok(None);
+        };
+        let base = match (base_blob, lo, hi) {
+            (Some(b), Some(lo), Some(hi)) => {
+                let b: [u8; 32] = b.try_into().map_err(|_| {
+                    Error::Corrupt(format!("chunk {id} names a reference that is not an id"))
+                })?;
+                Some((BlobId::from_bytes(b), lo as u64, hi as u64))
+            }
+            _ => None,
+        };
+        Ok(Some(StoredChunk {
+            id: *id,
+            raw_len: raw_len as u64,
+            codec,
+            base,
+            data,
+        }))
+    }
+
+    /// A value of the store's own settings (`store_meta`), if set.
+    pub fn meta(&self, name: &str) -> Result<Option<String>> {
+        Ok(self
+            .conn
+            .prepare_cached("SELECT value FROM store_meta WHERE name = ?1")?
+            .query_row(params![name], |r| r.get(0))
+            .optional()?)
     }
 
     /// The chunk ids of a blob, in order.

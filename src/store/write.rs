@@ -3,7 +3,7 @@
 
 use super::codec::EncodedPiece;
 use super::index::IndexRows;
-use super::read::Reader;
+use super::read::{Reader, StoredChunk};
 use crate::error::{Error, Result};
 use crate::hash::{BlobId, ChunkId, CommitId};
 use crate::model::{CommitBody, Conflict, Fix, Recorder};
@@ -53,6 +53,44 @@ impl WriteTx<'_> {
                 hi,
                 data
             ])?;
+        Ok(())
+    }
+
+    /// Store a piece received as stored elsewhere (see [`Reader::stored_chunk`]), unless one
+    /// with the same id is here. Its bytes are checked when it is read, like every piece.
+    pub fn put_stored_chunk(&self, c: &StoredChunk) -> Result<()> {
+        let (blob, lo, hi) = match &c.base {
+            Some((b, lo, hi)) => (
+                Some(b.as_bytes().to_vec()),
+                Some(*lo as i64),
+                Some(*hi as i64),
+            ),
+            None => (None, None, None),
+        };
+        self.tx
+            .prepare_cached(
+                "INSERT OR IGNORE INTO chunk (id, raw_len, codec, base_blob, base_lo, base_hi, data)
+                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+            )?
+            .execute(params![
+                c.id.as_bytes(),
+                c.raw_len as i64,
+                c.codec,
+                blob,
+                lo,
+                hi,
+                c.data
+            ])?;
+        Ok(())
+    }
+
+    /// Set a value of the store's own settings (`store_meta`).
+    pub fn set_meta(&self, name: &str, value: &str) -> Result<()> {
+        self.tx.execute(
+            "INSERT INTO store_meta (name, value) VALUES (?1, ?2)
+             ON CONFLICT (name) DO UPDATE SET value = excluded.value",
+            params![name, value],
+        )?;
         Ok(())
     }
 
@@ -128,6 +166,22 @@ impl WriteTx<'_> {
                 params![tbl, *seq as i64, hash, *n_rows as i64],
             )?;
         }
+        Ok(())
+    }
+
+    /// Append a commit row as it was found elsewhere, without index rows: for an audit copy of
+    /// a team store, where a body that does not decode is kept for `verify` to report.
+    pub fn append_raw_commit(
+        &self,
+        seq: u64,
+        id: &CommitId,
+        body: &[u8],
+        signature: &[u8],
+    ) -> Result<()> {
+        self.tx.execute(
+            "INSERT INTO commit_log (seq, id, body, signature) VALUES (?1, ?2, ?3, ?4)",
+            params![seq as i64, id.as_bytes(), body, signature],
+        )?;
         Ok(())
     }
 
