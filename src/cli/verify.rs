@@ -383,7 +383,7 @@ fn print_report(
                 out::clean(&r.what)
             )?;
         }
-        if a.receipt.is_empty() && report.is_clean() {
+        if receipts.is_empty() && report.is_clean() {
             writeln!(
                 o,
                 "  (a store cut at its end, or replaced by an older copy, still verifies: keep receipts outside it with 'emend receipt' and check them with 'verify --receipt FILE')"

@@ -54,7 +54,8 @@ impl Address {
     /// Read an address, filling in from `env` what it leaves out.
     pub fn parse(text: &str, env: &ServerEnv) -> Result<Address> {
         let shown = without_password(text);
-        let mut config: postgres::Config = text.parse().map_err(|e| {
+        let filled = fill_in(text.trim(), env);
+        let mut config: postgres::Config = filled.parse().map_err(|e| {
             Error::Invalid(format!(
                 "'{shown}' is not a PostgreSQL address ({e}); write it as postgres://USER@HOST/DATABASE"
             ))
@@ -71,11 +72,6 @@ impl Address {
         }
         if config.get_hosts().is_empty() {
             config.host(env.host.as_deref().unwrap_or("localhost"));
-        }
-        if config.get_ports().is_empty()
-            && let Some(port) = env.port
-        {
-            config.port(port);
         }
         if config.get_password().is_none()
             && let Some(pw) = &env.password
@@ -100,6 +96,55 @@ impl Address {
     pub fn user(&self) -> &str {
         self.config.get_user().unwrap_or("")
     }
+}
+
+/// The address with the host and port that it leaves out taken from `env` (as PostgreSQL's
+/// own clients take PGHOST and PGPORT).
+fn fill_in(text: &str, env: &ServerEnv) -> String {
+    if let Some(rest) = text
+        .strip_prefix("postgres://")
+        .or_else(|| text.strip_prefix("postgresql://"))
+    {
+        let scheme = &text[..text.len() - rest.len()];
+        let end = rest.find(['/', '?']).unwrap_or(rest.len());
+        let (auth, tail) = rest.split_at(end);
+        let (user, host) = match auth.rfind('@') {
+            Some(at) => auth.split_at(at + 1),
+            None => ("", auth),
+        };
+        let mut host = host.to_string();
+        if host.is_empty() {
+            host = env.host.clone().unwrap_or_else(|| "localhost".into());
+        }
+        let has_port = if host.starts_with('[') {
+            host.contains("]:")
+        } else {
+            host.contains(':')
+        };
+        if !has_port
+            && !host.contains(',')
+            && let Some(port) = env.port
+        {
+            host = format!("{host}:{port}");
+        }
+        return format!("{scheme}{user}{host}{tail}");
+    }
+    let mut out = text.to_string();
+    let has = |key: &str| {
+        text.split_whitespace()
+            .any(|kv| kv.to_ascii_lowercase().starts_with(key))
+    };
+    if !has("host=")
+        && let Some(h) = &env.host
+    {
+        out.push_str(&format!(" host={h}"));
+    }
+    if !has("port=")
+        && let Some(p) = env.port
+    {
+        out.push_str(&format!(" port={p}"));
+    }
+    out
 }
 
 /// The address as written, with any password taken out (`postgres://ana:pw@h/db` →
