@@ -204,6 +204,15 @@ fn pg(shown: &str, e: postgres::Error) -> Error {
                 problem.push_str(": ");
                 problem.push_str(detail);
             }
+            let code = db.code().code();
+            // Connection failures (class 08) and the server shutting down or ending this
+            // session (57P01–57P03) mean the server went away, not that it refused.
+            if code.starts_with("08") || matches!(code, "57P01" | "57P02" | "57P03") {
+                return Error::TeamUnreachable {
+                    server: shown.to_string(),
+                    problem,
+                };
+            }
             if *db.code() == SqlState::UNDEFINED_TABLE
                 || *db.code() == SqlState::INVALID_SCHEMA_NAME
             {
