@@ -403,6 +403,9 @@ fn commit_id(bytes: &[u8]) -> Result<CommitId> {
     Ok(CommitId::from_bytes(id32(bytes, "commit id")?))
 }
 
+/// A root signer as the server holds it: (key, name, e-mail, added at).
+pub type RootRow = ([u8; 32], String, Option<String>, String);
+
 /// One transaction on the team store.
 pub struct Session<'c> {
     tx: Transaction<'c>,
@@ -595,8 +598,8 @@ impl Session<'_> {
         Ok(order)
     }
 
-    /// The keys the team trusts without a trust commit: (key, name, e-mail, added at).
-    pub fn roots(&mut self) -> Result<Vec<([u8; 32], String, Option<String>, String)>> {
+    /// The keys the team trusts without a trust commit.
+    pub fn roots(&mut self) -> Result<Vec<RootRow>> {
         let rows = self
             .tx
             .query(

@@ -31,5 +31,7 @@ mod rules;
 mod snapshots;
 mod store;
 mod tamper;
+#[cfg(feature = "team")]
+mod team;
 mod walkthrough;
 mod workbooks;

@@ -202,6 +202,36 @@ pub struct Output {
 }
 
 impl Output {
+    /// The output of a command that was spawned rather than run with [`TestDir::run`].
+    #[allow(dead_code)]
+    pub fn from_parts(dir: &TestDir, c: &Command, out: std::process::Output) -> Output {
+        Output {
+            cmdline: format!(
+                "{} {}",
+                c.get_program().to_string_lossy(),
+                c.get_args()
+                    .map(|a| format!("{:?}", a.to_string_lossy()))
+                    .collect::<Vec<_>>()
+                    .join(" ")
+            ),
+            cwd: c
+                .get_current_dir()
+                .map(Path::to_path_buf)
+                .unwrap_or_else(|| dir.root.clone()),
+            test: dir.name.clone(),
+            root: dir.root.clone(),
+            status: out.status,
+            stdout: out.stdout,
+            stderr: out.stderr,
+        }
+    }
+
+    /// The exit code, if the process exited.
+    #[allow(dead_code)]
+    pub fn status_code(&self) -> Option<i32> {
+        self.status.code()
+    }
+
     fn report(&self, what: &str) -> String {
         format!(
             "\n=== {what} (test {})\ncommand: {}\ncwd: {}\nstatus: {}\n--- stdout\n{}\n--- stderr\n{}\n--- files in {}\n{}",
